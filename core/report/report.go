@@ -15,14 +15,15 @@ type Tool struct {
 // Summary is the content of DIR/summary.json.
 type Summary struct {
 	Tool       Tool       `json:"tool"`
-	Dims       []int      `json:"dims"`        // all used dims, e.g. [64 64 36 160]
-	VoxelMM    [3]float64 `json:"voxel_mm"`    // spacing along each array axis, mm
-	TR         *float64   `json:"tr_s"`        // seconds; null at group level
-	MaskVoxels int        `json:"mask_voxels"` // in-mask voxels that were analysed
-	DF         float64    `json:"df"`          // error degrees of freedom
-	FWHMmm     [3]float64 `json:"fwhm_mm"`     // residual smoothness per axis, mm
-	Resels     float64    `json:"resels"`      // R3 of the search volume
-	Perms      *int       `json:"perms"`       // permutations done; null for parametric runs
+	Dims       []int      `json:"dims"`           // all used dims, e.g. [64 64 36 160]
+	VoxelMM    [3]float64 `json:"voxel_mm"`       // spacing along each array axis, mm
+	TR         *float64   `json:"tr_s"`           // seconds; null at group level
+	MaskVoxels int        `json:"mask_voxels"`    // in-mask voxels that were analysed
+	DF         float64    `json:"df"`             // error degrees of freedom
+	FWHMmm     [3]float64 `json:"fwhm_mm"`        // residual smoothness per axis, mm
+	Resels     float64    `json:"resels"`         // R3 of the search volume
+	Perms      *int       `json:"perms"`          // permutations done; null for parametric runs
+	Seed       *uint64    `json:"seed,omitempty"` // seed of the permutations
 	Warnings   []string   `json:"warnings"`
 	NullCheck  *NullCheck `json:"null_check"`
 	Motion     *Motion    `json:"motion"`
@@ -116,4 +117,6 @@ type Maps struct {
 	Effect      string `json:"effect,omitempty"`
 	SE          string `json:"se,omitempty"`
 	Thresholded string `json:"thresholded,omitempty"`
+	TFCE        string `json:"tfce,omitempty"`  // group level, tfce only
+	PCorr       string `json:"pcorr,omitempty"` // group level: -log10 of the corrected p
 }

@@ -26,6 +26,9 @@ commands:
   fit   --bold F --events F --contrast SPEC ... --out DIR [flags]
                                          first-level model of one run
   realign --bold F --out DIR             rigid-body motion correction and motion.tsv
+  group --maps F,F,... [--design F] [--contrast SPEC ...] --out DIR [flags]
+                                         second-level model over subjects' effect maps
+  merge --out DIR SHARD_DIR...           join the shards of a sharded group run
 
 Run 'winnow COMMAND -h' for a command's flags.
 `
@@ -50,9 +53,10 @@ func run(args []string, stdout, stderr io.Writer) int {
 		err = runFit(rest, stdout, stderr)
 	case "realign":
 		err = runRealign(rest, stdout, stderr)
-	case "group", "merge":
-		fmt.Fprintf(stderr, "winnow: command %q is not available in this version (have: demo, info, fit, realign)\n", cmd)
-		return 2
+	case "group":
+		err = runGroup(rest, stdout, stderr)
+	case "merge":
+		err = runMerge(rest, stdout, stderr)
 	case "-h", "-help", "--help", "help":
 		fmt.Fprint(stdout, usage)
 		return 0

@@ -28,7 +28,8 @@ func TestUsageErrors(t *testing.T) {
 		{[]string{"fit", "--bold", "x.nii"}, "--events is required"},
 		{[]string{"info"}, "exactly one FILE"},
 		{[]string{"info", "no-such-file.nii"}, "no-such-file.nii"},
-		{[]string{"group"}, "not available"},
+		{[]string{"group"}, "--maps is required"},
+		{[]string{"fit", "--bold", "x.nii", "--events", "e.tsv", "--out", "o", "--contrast", "a=a", "--null-check", "-3"}, "--null-check"},
 	}
 	for _, tc := range cases {
 		code, _, stderr := runCLI(tc.args...)

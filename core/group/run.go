@@ -1,0 +1,521 @@
+package group
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"runtime"
+	"sync"
+	"sync/atomic"
+
+	"winnow/core/cluster"
+)
+
+// TFCE parameters (Smith & Nichols 2009; methods notes §k).
+const (
+	TFCEE = 0.5
+	TFCEH = 2.0
+)
+
+// TieTol is the relative tolerance of "T*_j ≥ T": T*_j counts when T*_j ≥ T − TieTol·|T|.
+const TieTol = 1e-10
+
+// Stats selects the maxima recorded per relabelling.
+type Stats uint8
+
+const (
+	MaxStat    Stats = 1 << iota // the largest statistic (t or F)
+	MaxCluster                   // the largest 26-connected cluster of {stat ≥ threshold}, voxels
+	MaxTFCE                      // the largest TFCE (of t, or of √F)
+)
+
+// Space places the analysed voxels on their grid.
+type Space struct {
+	Dims   [3]int
+	Voxels []int32 // in-mask linear indices, ascending
+}
+
+// Problem is a model applied to data: the reduced-model residuals and the sums every
+// relabelling shares.
+type Problem struct {
+	M     *Model
+	Space Space
+	v     int
+	rz    []float64 // N×V residuals of the reduced model (the data when Z is empty)
+	ss    []float64 // per voxel Σ_i rz_i²
+	m0    []float64 // per voxel, the invariant coordinate (u_0'rz) when M.invariant
+}
+
+// Prepare applies the model to data y (N×V row-major: subject i's values at y[i*V:(i+1)*V],
+// V = len(sp.Voxels)). y is not modified or kept.
+func (m *Model) Prepare(y []float64, sp Space) *Problem {
+	v := len(sp.Voxels)
+	if len(y) != m.N*v {
+		panic(fmt.Sprintf("group: data has %d values, want %d subjects × %d voxels", len(y), m.N, v))
+	}
+	n := m.N
+	p := &Problem{M: m, Space: sp, v: v, rz: make([]float64, n*v), ss: make([]float64, v)}
+	if m.resid == nil {
+		copy(p.rz, y)
+	} else {
+		for i := range n {
+			dst := p.rz[i*v : (i+1)*v]
+			for l := range n {
+				axpy(dst, m.resid[i*n+l], y[l*v:(l+1)*v])
+			}
+		}
+	}
+	for i := range n {
+		row := p.rz[i*v : (i+1)*v]
+		for k, x := range row {
+			p.ss[k] += x * x
+		}
+	}
+	if m.invariant {
+		p.m0 = make([]float64, v)
+		for i := range n {
+			axpy(p.m0, m.u[i*m.r], p.rz[i*v:(i+1)*v])
+		}
+	}
+	return p
+}
+
+func axpy(dst []float64, a float64, x []float64) {
+	x = x[:len(dst)]
+	for k := range dst {
+		dst[k] += a * x[k]
+	}
+}
+
+// Options set what Run records.
+type Options struct {
+	Stats   Stats
+	Cluster float64 // cluster-forming threshold on the statistic's scale (t, or F), for MaxCluster
+	Workers int     // 0: runtime.NumCPU()
+	// Exceed, with Observed set, counts per voxel the relabellings whose statistic reaches the
+	// observed one (for uncorrected permutation p-values).
+	Exceed   bool
+	Observed *Observed
+	Progress func(done, total int) // called from one goroutine at a time
+}
+
+// Observed is the identity's result: the maps the permutation maxima are compared with.
+type Observed struct {
+	Stat   []float64   // per voxel: t or F
+	Effect [][]float64 // per contrast row, per voxel: Cβ̂
+	Grid   []float32   // full grid: t (or √F) in the mask, 0 elsewhere: the map TFCE and clusters see
+	TFCE   []float64   // full grid, when MaxTFCE
+	Max    Maxima      // the identity's maxima
+}
+
+// Maxima are the recorded maxima of one relabelling.
+type Maxima struct {
+	Stat, Cluster, TFCE float64
+}
+
+// Null holds the maxima of relabellings Lo..Hi−1.
+type Null struct {
+	Lo, Hi  int
+	Stat    []float64 // MaxStat
+	Cluster []float64 // MaxCluster
+	TFCE    []float64 // MaxTFCE
+	Exceed  []int64   // per voxel, with Options.Exceed
+}
+
+// Observe computes the identity's statistic, effect and (with MaxTFCE) TFCE maps through the
+// same arithmetic as every relabelling.
+func (p *Problem) Observe(pl *Plan, opt Options) *Observed {
+	w := p.newWorker(1, opt)
+	obs := &Observed{}
+	w.keep = obs
+	id := pl.NewRelabelling()
+	pl.At(pl.IdentityIndex(), id)
+	w.block([]Relabelling{id})
+	obs.Max = w.max[0]
+	return obs
+}
+
+// Run computes the maxima of relabellings lo..hi−1 of plan pl on opt.Workers goroutines.
+// The result does not depend on the number of workers.
+func (p *Problem) Run(ctx context.Context, pl *Plan, lo, hi int, opt Options) (*Null, error) {
+	if lo < 0 || hi > pl.N || lo > hi {
+		panic(fmt.Sprintf("group: relabellings %d..%d of %d", lo, hi, pl.N))
+	}
+	if opt.Exceed && opt.Observed == nil {
+		panic("group: Exceed needs Observed")
+	}
+	nw := opt.Workers
+	if nw <= 0 {
+		nw = runtime.NumCPU()
+	}
+	const blockSize = 8
+	nb := (hi - lo + blockSize - 1) / blockSize
+	nw = max(1, min(nw, nb))
+	null := &Null{Lo: lo, Hi: hi}
+	if opt.Stats&MaxStat != 0 {
+		null.Stat = make([]float64, hi-lo)
+	}
+	if opt.Stats&MaxCluster != 0 {
+		null.Cluster = make([]float64, hi-lo)
+	}
+	if opt.Stats&MaxTFCE != 0 {
+		null.TFCE = make([]float64, hi-lo)
+	}
+	var next, done atomic.Int64
+	var mu sync.Mutex
+	var wg sync.WaitGroup
+	workers := make([]*worker, nw)
+	for wi := range nw {
+		w := p.newWorker(blockSize, opt)
+		workers[wi] = w
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			labs := make([]Relabelling, blockSize)
+			for b := range labs {
+				labs[b] = pl.NewRelabelling()
+			}
+			for {
+				b := int(next.Add(1) - 1)
+				if b >= nb || ctx.Err() != nil {
+					return
+				}
+				j0 := lo + b*blockSize
+				j1 := min(hi, j0+blockSize)
+				for j := j0; j < j1; j++ {
+					pl.At(j, labs[j-j0])
+				}
+				w.block(labs[:j1-j0])
+				for j := j0; j < j1; j++ {
+					mx := w.max[j-j0]
+					if null.Stat != nil {
+						null.Stat[j-lo] = mx.Stat
+					}
+					if null.Cluster != nil {
+						null.Cluster[j-lo] = mx.Cluster
+					}
+					if null.TFCE != nil {
+						null.TFCE[j-lo] = mx.TFCE
+					}
+				}
+				d := int(done.Add(int64(j1 - j0)))
+				if opt.Progress != nil {
+					mu.Lock()
+					opt.Progress(d, hi-lo)
+					mu.Unlock()
+				}
+			}
+		}()
+	}
+	wg.Wait()
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	if opt.Exceed {
+		null.Exceed = make([]int64, p.v)
+		for _, w := range workers {
+			for k, c := range w.exceed {
+				null.Exceed[k] += c
+			}
+		}
+	}
+	return null, nil
+}
+
+// worker holds the buffers of one goroutine.
+type worker struct {
+	p      *Problem
+	opt    Options
+	nb     int       // relabellings per block
+	rows   int       // coordinates of m computed per relabelling (r, or r − 1 with the invariant)
+	coef   []float64 // nb·rows × N coefficients
+	out    []float64 // nb·rows × chunk
+	mm     []float64 // chunk: |m|²
+	st     []float64 // chunk: the statistic
+	num    []float64 // Q × chunk: statistic numerators
+	grids  [][]float32
+	tfce   *cluster.TFCEWorkspace
+	tdst   []float64
+	inBuf  []bool
+	max    []Maxima
+	exceed []int64
+	keep   *Observed
+	tol    []float64 // per voxel, observed − TieTol·|observed| (Exceed)
+}
+
+const chunk = 2048
+
+func (p *Problem) newWorker(nb int, opt Options) *worker {
+	m := p.M
+	rows := m.r
+	if m.invariant {
+		rows--
+	}
+	w := &worker{p: p, opt: opt, nb: nb, rows: rows}
+	w.coef = make([]float64, nb*rows*m.N)
+	w.out = make([]float64, nb*rows*chunk)
+	w.mm = make([]float64, chunk)
+	w.st = make([]float64, chunk)
+	nk := 1
+	if m.F {
+		nk = m.Q
+	}
+	w.num = make([]float64, nk*chunk)
+	w.max = make([]Maxima, nb)
+	nvox := p.Space.Dims[0] * p.Space.Dims[1] * p.Space.Dims[2]
+	if opt.Stats&(MaxCluster|MaxTFCE) != 0 {
+		w.grids = make([][]float32, nb)
+		for b := range w.grids {
+			w.grids[b] = make([]float32, nvox)
+		}
+	}
+	if opt.Stats&MaxTFCE != 0 {
+		w.tfce = cluster.NewTFCEWorkspace(p.Space.Dims, cluster.Corners)
+		w.tdst = make([]float64, nvox)
+	}
+	if opt.Stats&MaxCluster != 0 {
+		w.inBuf = make([]bool, nvox)
+	}
+	if opt.Exceed && opt.Observed != nil {
+		w.exceed = make([]int64, p.v)
+		w.tol = make([]float64, p.v)
+		for k, t := range opt.Observed.Stat {
+			w.tol[k] = t - TieTol*math.Abs(t)
+		}
+	}
+	return w
+}
+
+// block computes the maxima of a block of relabellings.
+func (w *worker) block(labs []Relabelling) {
+	p, m := w.p, w.p.M
+	n, r, rows := m.N, m.r, w.rows
+	k0 := r - rows // first computed coordinate
+	nb := len(labs)
+	for b, lab := range labs {
+		for kk := range rows {
+			k := k0 + kk
+			c := w.coef[(b*rows+kk)*n : (b*rows+kk+1)*n]
+			if lab.Signs != nil {
+				for i := range n {
+					c[i] = lab.Signs[i] * m.u[i*r+k]
+				}
+			} else {
+				for i := range n {
+					c[i] = m.u[m.rep[lab.Class[i]]*r+k]
+				}
+			}
+		}
+		w.max[b] = Maxima{Stat: math.Inf(-1)}
+	}
+	keep := w.keep
+	if keep != nil {
+		keep.Stat = make([]float64, p.v)
+		keep.Effect = make([][]float64, m.rows)
+		for l := range keep.Effect {
+			keep.Effect[l] = make([]float64, p.v)
+		}
+	}
+	needGrid := w.grids != nil || keep != nil
+	sqrtF := m.F
+	nu := m.DF
+	nk := 1
+	if m.F {
+		nk = m.Q
+	}
+	vox := p.Space.Voxels
+	for c0 := 0; c0 < p.v; c0 += chunk {
+		c1 := min(p.v, c0+chunk)
+		cl := c1 - c0
+		// m coordinates: out[b, kk] = Σ_i coef[b, kk, i] rz[i, c0:c1].
+		for row := range nb * rows {
+			o := w.out[row*chunk : row*chunk+cl]
+			clear(o)
+			dotRows(o, w.coef[row*n:(row+1)*n], p.rz, p.v, c0)
+		}
+		ss := p.ss[c0:c1]
+		for b := range nb {
+			mm := w.mm[:cl]
+			num := w.num[:nk*chunk]
+			for l := range nk {
+				clear(num[l*chunk : l*chunk+cl])
+			}
+			if m.invariant {
+				m0 := p.m0[c0:c1]
+				for v, x := range m0 {
+					mm[v] = x * x
+				}
+				for l := range nk {
+					axpy(num[l*chunk:l*chunk+cl], m.k[l*r], m0)
+				}
+			} else {
+				clear(mm)
+			}
+			for kk := range rows {
+				o := w.out[(b*rows+kk)*chunk : (b*rows+kk)*chunk+cl]
+				for v, x := range o {
+					mm[v] += x * x
+				}
+				for l := range nk {
+					axpy(num[l*chunk:l*chunk+cl], m.k[l*r+k0+kk], o)
+				}
+			}
+			st := w.st[:cl]
+			for v := range cl {
+				rss := ss[v] - mm[v]
+				t := 0.0
+				if rss > 1e-12*ss[v] {
+					if m.F {
+						q := 0.0
+						for l := range nk {
+							x := num[l*chunk+v]
+							q += x * x
+						}
+						t = (q / float64(nk)) / (rss / nu)
+					} else {
+						t = num[v] / math.Sqrt(rss/nu)
+					}
+				}
+				st[v] = t
+			}
+			mx := w.max[b].Stat
+			for _, t := range st {
+				if t > mx {
+					mx = t
+				}
+			}
+			w.max[b].Stat = mx
+			if needGrid {
+				grid := keepOr(keep, w.grids, b, p.Space.Dims)
+				for v, t := range st {
+					if sqrtF {
+						t = math.Sqrt(t)
+					}
+					grid[vox[c0+v]] = float32(t)
+				}
+			}
+			if keep != nil {
+				copy(keep.Stat[c0:c1], st)
+			}
+			if w.exceed != nil {
+				ex, tol := w.exceed[c0:c1], w.tol[c0:c1]
+				for v, t := range st {
+					if t >= tol[v] {
+						ex[v]++
+					}
+				}
+			}
+			if keep != nil {
+				// Effects: Cβ̂ = G m.
+				for l := range m.rows {
+					e := keep.Effect[l][c0:c1]
+					if m.invariant {
+						axpy(e, m.g[l*r], p.m0[c0:c1])
+					}
+					for kk := range rows {
+						axpy(e, m.g[l*r+k0+kk], w.out[(b*rows+kk)*chunk:(b*rows+kk)*chunk+cl])
+					}
+				}
+			}
+		}
+	}
+	for b := range nb {
+		var grid []float32
+		if needGrid {
+			grid = keepOr(keep, w.grids, b, p.Space.Dims)
+		}
+		if w.opt.Stats&MaxCluster != 0 {
+			thr := w.opt.Cluster
+			if sqrtF {
+				thr = math.Sqrt(thr)
+			}
+			in := w.inBuf
+			for i, g := range grid {
+				in[i] = float64(g) >= thr
+			}
+			_, sizes := cluster.Label(in, p.Space.Dims, cluster.Corners)
+			best := 0
+			for _, s := range sizes {
+				best = max(best, s)
+			}
+			w.max[b].Cluster = float64(best)
+		}
+		if w.opt.Stats&MaxTFCE != 0 {
+			cluster.TFCETo(w.tfce, w.tdst, grid, TFCEE, TFCEH, cluster.TailPositive)
+			best := 0.0
+			for _, x := range w.tdst {
+				if x > best {
+					best = x
+				}
+			}
+			w.max[b].TFCE = best
+			if keep != nil {
+				keep.TFCE = append([]float64(nil), w.tdst...)
+			}
+		}
+	}
+}
+
+// keepOr returns the grid a block's relabelling b writes: the observed one when keeping.
+func keepOr(keep *Observed, grids [][]float32, b int, dims [3]int) []float32 {
+	if keep == nil {
+		return grids[b]
+	}
+	if keep.Grid == nil {
+		keep.Grid = make([]float32, dims[0]*dims[1]*dims[2])
+	}
+	return keep.Grid
+}
+
+// classRep returns a representative subject of each design-row class.
+func (m *Model) classRep() []int {
+	rep := make([]int, len(m.counts))
+	for c := range rep {
+		rep[c] = -1
+	}
+	for i, c := range m.class {
+		if rep[c] < 0 {
+			rep[c] = i
+		}
+	}
+	return rep
+}
+
+// dotRows adds Σ_i a[i]·rz[i*V + c0 : i*V + c0 + len(o)] to o, four rows at a time.
+func dotRows(o, a, rz []float64, V, c0 int) {
+	n := len(a)
+	cl := len(o)
+	i := 0
+	for ; i+8 <= n; i += 8 {
+		r0 := rz[i*V+c0 : i*V+c0+cl]
+		r1 := rz[(i+1)*V+c0 : (i+1)*V+c0+cl]
+		r2 := rz[(i+2)*V+c0 : (i+2)*V+c0+cl]
+		r3 := rz[(i+3)*V+c0 : (i+3)*V+c0+cl]
+		r4 := rz[(i+4)*V+c0 : (i+4)*V+c0+cl]
+		r5 := rz[(i+5)*V+c0 : (i+5)*V+c0+cl]
+		r6 := rz[(i+6)*V+c0 : (i+6)*V+c0+cl]
+		r7 := rz[(i+7)*V+c0 : (i+7)*V+c0+cl]
+		a0, a1, a2, a3 := a[i], a[i+1], a[i+2], a[i+3]
+		a4, a5, a6, a7 := a[i+4], a[i+5], a[i+6], a[i+7]
+		for v := range o {
+			o[v] += (a0*r0[v] + a1*r1[v] + a2*r2[v] + a3*r3[v]) + (a4*r4[v] + a5*r5[v] + a6*r6[v] + a7*r7[v])
+		}
+	}
+	for ; i+4 <= n; i += 4 {
+		r0 := rz[i*V+c0 : i*V+c0+cl]
+		r1 := rz[(i+1)*V+c0 : (i+1)*V+c0+cl]
+		r2 := rz[(i+2)*V+c0 : (i+2)*V+c0+cl]
+		r3 := rz[(i+3)*V+c0 : (i+3)*V+c0+cl]
+		a0, a1, a2, a3 := a[i], a[i+1], a[i+2], a[i+3]
+		for v := range o {
+			o[v] += a0*r0[v] + a1*r1[v] + a2*r2[v] + a3*r3[v]
+		}
+	}
+	for ; i < n; i++ {
+		r := rz[i*V+c0 : i*V+c0+cl]
+		ai := a[i]
+		for v := range o {
+			o[v] += ai * r[v]
+		}
+	}
+}

@@ -1,0 +1,193 @@
+package group
+
+import (
+	"fmt"
+	"math"
+	"slices"
+	"sort"
+
+	"gonum.org/v1/gonum/mathext"
+)
+
+// Distribution is a sorted permutation null distribution of a maximum (identity included).
+type Distribution struct {
+	asc []float64
+}
+
+// NewDistribution sorts a copy of the maxima.
+func NewDistribution(maxima []float64) Distribution {
+	a := slices.Clone(maxima)
+	slices.Sort(a)
+	return Distribution{asc: a}
+}
+
+// N is the number of relabellings.
+func (d Distribution) N() int { return len(d.asc) }
+
+// Count returns #{j : M_j ≥ t − TieTol·|t|}.
+func (d Distribution) Count(t float64) int {
+	lim := t - TieTol*math.Abs(t)
+	i := sort.SearchFloat64s(d.asc, lim) // first index with asc[i] >= lim
+	return len(d.asc) - i
+}
+
+// P returns the corrected p of t: Count(t)/N (methods j.3; with the identity among the N this
+// equals the Phipson–Smyth (1 + b)/(N_r + 1) for N_r = N − 1 random draws).
+func (d Distribution) P(t float64) float64 {
+	return float64(d.Count(t)) / float64(len(d.asc))
+}
+
+// K returns ⌊α·N⌋, the number of relabellings allowed to exceed the critical value.
+func (d Distribution) K(alpha float64) int {
+	return int(math.Floor(alpha*float64(len(d.asc)) + 1e-9))
+}
+
+// Critical returns the (k+1)-th largest maximum, k = ⌊α·N⌋: a statistic above it has p ≤ α.
+// ok is false when k = 0 (too few relabellings for alpha: nothing can pass).
+func (d Distribution) Critical(alpha float64) (value float64, ok bool) {
+	k := d.K(alpha)
+	if k < 1 || k >= len(d.asc) {
+		return math.NaN(), false
+	}
+	return d.asc[len(d.asc)-1-k], true
+}
+
+// Above returns #{j : M_j > u}: relabellings whose maximum exceeds u.
+func (d Distribution) Above(u float64) int {
+	i := sort.Search(len(d.asc), func(i int) bool { return d.asc[i] > u })
+	return len(d.asc) - i
+}
+
+// ClopperPearson returns the exact (Clopper & Pearson 1934) two-sided interval of confidence
+// 1 − a for a binomial proportion with x successes in n trials: the lower bound is the a/2
+// quantile of Beta(x, n − x + 1) (0 when x = 0), the upper the 1 − a/2 quantile of
+// Beta(x + 1, n − x) (1 when x = n).
+func ClopperPearson(x, n int, a float64) (lo, hi float64) {
+	if n < 1 || x < 0 || x > n || !(a > 0 && a < 1) {
+		panic(fmt.Sprintf("group: Clopper–Pearson with x = %d, n = %d, a = %g", x, n, a))
+	}
+	lo, hi = 0, 1
+	if x > 0 {
+		lo = betaQuantile(float64(x), float64(n-x+1), a/2)
+	}
+	if x < n {
+		hi = betaQuantile(float64(x+1), float64(n-x), 1-a/2)
+	}
+	return lo, hi
+}
+
+// betaQuantile returns y with I_y(a, b) = p, by bisection on the regularised incomplete beta
+// (monotone in y), to full double precision.
+func betaQuantile(a, b, p float64) float64 {
+	lo, hi := 0.0, 1.0
+	for range 200 {
+		mid := lo + (hi-lo)/2
+		if mid <= lo || mid >= hi {
+			break
+		}
+		if mathext.RegIncBeta(a, b, mid) < p {
+			lo = mid
+		} else {
+			hi = mid
+		}
+	}
+	return lo + (hi-lo)/2
+}
+
+// Residuals returns the full-model residuals, N×V row-major: rz − U(U'rz).
+func (p *Problem) Residuals() []float64 {
+	m := p.M
+	n, r, v := m.N, m.r, p.v
+	res := make([]float64, n*v)
+	copy(res, p.rz)
+	coord := make([]float64, v)
+	for k := range r {
+		clear(coord)
+		for i := range n {
+			axpy(coord, m.u[i*r+k], p.rz[i*v:(i+1)*v])
+		}
+		for i := range n {
+			axpy(res[i*v:(i+1)*v], -m.u[i*r+k], coord)
+		}
+	}
+	return res
+}
+
+// Smoothness estimates the FWHM in voxels per axis of the field whose N realisations are res
+// (N×V row-major over sp.Voxels), from the standardised residuals u = r/‖r‖ per voxel:
+// d_j = mean over in-mask neighbour pairs along axis j of 2(1 − Σ u(v)u(v+e_j)), corrected for
+// ν degrees of freedom as d' = d·ν/(ν+1), FWHM = sqrt(−2 ln 2 / ln(1 − d'/2)) (methods notes
+// §f.1; the correction matters at the small ν of group designs). An axis without pairs is NaN.
+func Smoothness(res []float64, n int, sp Space, nu float64) [3]float64 {
+	v := len(sp.Voxels)
+	if len(res) != n*v {
+		panic(fmt.Sprintf("group: residuals have %d values, want %d × %d", len(res), n, v))
+	}
+	dims := sp.Dims
+	nvox := dims[0] * dims[1] * dims[2]
+	pos := make([]int32, nvox)
+	for i := range pos {
+		pos[i] = -1
+	}
+	for k, g := range sp.Voxels {
+		pos[g] = int32(k)
+	}
+	inv := make([]float64, v)
+	for i := range n {
+		for k, x := range res[i*v : (i+1)*v] {
+			inv[k] += x * x
+		}
+	}
+	for k, s := range inv {
+		if s > 0 {
+			inv[k] = 1 / math.Sqrt(s)
+		}
+	}
+	step := [3]int{1, dims[0], dims[0] * dims[1]}
+	var out [3]float64
+	for ax := range 3 {
+		var a, b []int32
+		for k, g := range sp.Voxels {
+			c := int(g)
+			coord := [3]int{c % dims[0], c / dims[0] % dims[1], c / (dims[0] * dims[1])}
+			if coord[ax]+1 >= dims[ax] {
+				continue
+			}
+			w := pos[c+step[ax]]
+			if w < 0 || inv[k] == 0 || inv[w] == 0 {
+				continue
+			}
+			a = append(a, int32(k))
+			b = append(b, w)
+		}
+		if len(a) == 0 {
+			out[ax] = math.NaN()
+			continue
+		}
+		corr := make([]float64, len(a))
+		for i := range n {
+			row := res[i*v : (i+1)*v]
+			for t := range a {
+				corr[t] += row[a[t]] * row[b[t]]
+			}
+		}
+		sum := 0.0
+		for t := range a {
+			sum += 2 * (1 - corr[t]*inv[a[t]]*inv[b[t]])
+		}
+		out[ax] = fwhmFromD(sum/float64(len(a)), nu)
+	}
+	return out
+}
+
+func fwhmFromD(d, nu float64) float64 {
+	dc := d * nu / (nu + 1)
+	if dc <= 0 {
+		return math.Inf(1)
+	}
+	l := math.Log(1 - dc/2)
+	if !(l < 0) || dc >= 2 {
+		return 0
+	}
+	return math.Sqrt(-2 * math.Ln2 / l)
+}
