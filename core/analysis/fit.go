@@ -161,7 +161,7 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 	var inputs []report.InputRef
 
 	// Tables first: they are small, and their errors should not wait for the scan.
-	evh := newHashingReader(in.Events.R)
+	evh := newInputReader(in.Events)
 	ev, err := events.ParseEvents(evh)
 	if err != nil {
 		return nil, inputErr(in.Events.Name, err)
@@ -172,7 +172,7 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 	}
 	var conf *events.Table
 	if in.Confounds != nil {
-		ch := newHashingReader(in.Confounds.R)
+		ch := newInputReader(*in.Confounds)
 		conf, err = events.ParseConfounds(ch)
 		if err != nil {
 			return nil, inputErr(in.Confounds.Name, err)
@@ -184,7 +184,7 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 	}
 
 	// The run's header.
-	bh := newHashingReader(in.Bold.R)
+	bh := newInputReader(in.Bold)
 	nr, err := nifti.NewReader(bh, opt.Limits)
 	if err != nil {
 		return nil, inputErr(in.Bold.Name, err)
@@ -241,7 +241,7 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 	}
 	var mask []bool
 	if in.Mask != nil {
-		mh := newHashingReader(in.Mask.R)
+		mh := newInputReader(*in.Mask)
 		mask, err = readMask(mh, in.Mask.Name, grid, opt.Limits)
 		if err != nil {
 			return nil, err

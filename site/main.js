@@ -1,0 +1,756 @@
+// The page: state, file inputs, settings, the worker connection and the
+// automation entry window.winnow. Views draw from plain data (views/*.js);
+// the worker does all the work (worker.js, wasm/). No maths here.
+
+import { Kind, METHODS, message } from "./protocol.js";
+import * as slices from "./views/slices.js";
+import * as clusterView from "./views/clusters.js";
+import * as designView from "./views/design.js";
+import * as legendView from "./views/legend.js";
+import * as histView from "./views/histogram.js";
+import * as seriesView from "./views/series.js";
+import * as hrfView from "./views/hrf.js";
+import * as motionView from "./views/motion.js";
+
+const $ = (id) => document.getElementById(id);
+
+// ---- worker ---------------------------------------------------------------
+
+let worker = null;
+let nextId = 1;
+const pending = new Map(); // id -> {resolve, reject, progress}
+let markReady, failReady;
+const ready = new Promise((res, rej) => {
+  markReady = res;
+  failReady = rej;
+});
+let isReady = false;
+
+// Offline single-file page: the worker source and the gzip-compressed wasm
+// are inert blocks in the page; otherwise both are files next to the page.
+const workerSrc = document.getElementById("winnow-worker-src");
+const wasmGz = document.getElementById("winnow-wasm-gz");
+
+async function inflateWasm() {
+  const b64 = wasmGz.textContent.trim();
+  const bin = atob(b64);
+  const gz = new Uint8Array(bin.length);
+  for (let i = 0; i < bin.length; i++) gz[i] = bin.charCodeAt(i);
+  const stream = new Blob([gz]).stream().pipeThrough(new DecompressionStream("gzip"));
+  return new Response(stream).arrayBuffer();
+}
+
+function startWorker() {
+  if (workerSrc) {
+    const url = URL.createObjectURL(new Blob([workerSrc.textContent], { type: "text/javascript" }));
+    worker = new Worker(url);
+    inflateWasm().then(
+      (buf) => worker.postMessage({ kind: Kind.boot, wasm: buf }, [buf]),
+      (err) => bootFailed("inflating the embedded WebAssembly: " + err.message),
+    );
+  } else {
+    worker = new Worker("worker.js");
+    worker.postMessage({ kind: Kind.boot, url: new URL("winnow.wasm", location.href).href });
+  }
+  worker.onmessage = (e) => onWorkerMessage(e.data);
+  worker.onerror = (e) => {
+    e.preventDefault();
+    bootFailed("the worker failed: " + (e.message || "unknown error"));
+  };
+}
+
+function bootFailed(text) {
+  showError(text);
+  setState("error");
+  if (!isReady) failReady(new Error(text));
+  for (const [id, p] of pending) {
+    pending.delete(id);
+    p.reject(new Error(text));
+  }
+}
+
+function onWorkerMessage(msg) {
+  if (!msg || msg.v !== 1) return;
+  if (msg.kind === Kind.ready) {
+    isReady = true;
+    hrf = msg.hrf || null;
+    markReady({ version: msg.version });
+    if (!busy) {
+      setBusy(false); // refresh the buttons, also after a restart
+      setState("ready");
+      setStatus(restarted ? "Canceled (the worker was restarted)." : `Ready (winnow ${msg.version}). Nothing leaves this tab.`);
+    }
+    restarted = false;
+    return;
+  }
+  const p = pending.get(msg.id);
+  if (!p) {
+    if (msg.kind === Kind.error) bootFailed(msg.message);
+    return;
+  }
+  switch (msg.kind) {
+    case Kind.progress:
+      if (p.progress) p.progress(msg);
+      break;
+    case Kind.result:
+      pending.delete(msg.id);
+      p.resolve(msg);
+      break;
+    case Kind.error:
+      pending.delete(msg.id);
+      p.reject(new Error(msg.message));
+      break;
+  }
+}
+
+// request sends one message and resolves with its result message. A fit
+// (the default) becomes the request the Cancel button ends; side requests
+// (series, export) do not.
+function request(kind, fields, progress, side = false) {
+  const id = nextId++;
+  const p = new Promise((resolve, reject) => {
+    pending.set(id, { resolve, reject, progress });
+    worker.postMessage(message(id, kind, fields));
+  });
+  if (!side) current = id;
+  p.id = id;
+  return p;
+}
+
+let current = 0; // id of the running fit, for cancel
+let restarted = false; // the worker was restarted to end a fit
+
+// cancel asks the worker to stop the running fit. A fit that does not stop
+// within five seconds (inside a long step that does not look at its
+// context, such as generating the demo) is ended by restarting the worker,
+// so the page never hangs.
+function cancel() {
+  const id = current;
+  const p = pending.get(id);
+  if (!p) return;
+  worker.postMessage(message(nextId++, Kind.cancel, { target: id }));
+  setTimeout(() => {
+    if (!pending.has(id)) return;
+    pending.delete(id);
+    worker.terminate();
+    isReady = false;
+    restarted = true;
+    p.reject(new Error("canceled"));
+    startWorker();
+  }, 5000);
+}
+
+// ---- page state -----------------------------------------------------------
+
+const files = { bold: null, events: null, confounds: null, mask: null };
+let result = null; // {summary, dims, voxelMM, affine, maps, mask, design, truth}
+let view = { contrast: 0, cursor: [0, 0, 0], selected: -1, geom: null };
+let busy = false;
+let hrf = null; // {t, h}: the response model, sent once by the worker
+let series = null; // the series on screen: {ijk, time, observed, fitted, rho}
+let seriesReq = null; // the running series request, for cancel
+// timings of the last fit and rethreshold, ms, for the benchmark harness.
+// rethresholdMs runs from the request to the views redrawn (canvas calls
+// done); rethresholdWorkerMs to the worker's reply; rethresholdPaintedMs to
+// the second animation frame after the redraw.
+const timings = { fitMs: null, rethresholdMs: null, rethresholdWorkerMs: null, rethresholdPaintedMs: null, kind: null };
+
+function setState(s) {
+  document.body.dataset.state = s;
+}
+function setStatus(text) {
+  $("status").textContent = text;
+}
+function showError(text) {
+  const el = $("error");
+  el.textContent = text;
+  el.hidden = !text;
+}
+
+function setBusy(on) {
+  busy = on;
+  $("run").disabled = on || !isReady;
+  $("demo").disabled = on || !isReady;
+  $("rethreshold").disabled = on || !result;
+  $("progress").hidden = !on;
+  if (on) {
+    $("progress-fill").style.width = "0%";
+    $("progress-text").textContent = "starting";
+  }
+}
+
+function onProgress(msg) {
+  const f = msg.total > 0 ? Math.min(1, msg.done / msg.total) : 0;
+  $("progress-fill").style.width = `${(100 * f).toFixed(1)}%`;
+  $("progress-text").textContent = msg.total > 1 ? `${msg.stage}: ${msg.done} of ${msg.total}` : msg.stage;
+}
+
+function settingsFromForm() {
+  const num = (id) => {
+    const v = $(id).value.trim();
+    return v === "" ? 0 : Number(v);
+  };
+  return {
+    contrasts: $("contrasts").value.split("\n").map((s) => s.trim()).filter(Boolean),
+    correct: $("correct").value,
+    alpha: num("alpha"),
+    clusterP: num("cluster-p"),
+    smooth: num("smooth"),
+    highpass: $("highpass").value.trim() === "" ? 128 : num("highpass"),
+    noise: $("noise").value,
+    tr: num("tr"),
+    realign: $("realign").checked,
+  };
+}
+
+// run sends a fit (analyze or demo) and shows its result; it resolves with
+// the summary once the views have drawn.
+async function run(kind, fields) {
+  await ready;
+  if (busy) throw new Error("an analysis is already running");
+  stopSeries();
+  showError("");
+  setBusy(true);
+  setState("running");
+  setStatus(kind === Kind.demo ? "Generating and fitting the demo run\u2026" : "Fitting\u2026");
+  const t0 = performance.now();
+  try {
+    const msg = await request(kind, fields, onProgress);
+    result = {
+      summary: JSON.parse(msg.summary),
+      dims: msg.dims, voxelMM: msg.voxelMM, affine: msg.affine,
+      maps: msg.maps, mask: msg.mask, design: msg.design, truth: msg.truth || null,
+      hist: msg.hist, motion: msg.motion || null, files: msg.files || [],
+    };
+    series = null;
+    revokeExports();
+    view = { contrast: 0, cursor: startCursor(), selected: -1, geom: null };
+    const c0 = result.summary.contrasts[0];
+    if (c0 && c0.clusters.length > 0) {
+      view.cursor = c0.clusters[0].peak_ijk.slice();
+      view.selected = 0;
+    }
+    if (kind === Kind.demo && c0) $("contrasts").value = c0.spec || "";
+    await showResult();
+    const ms = performance.now() - t0;
+    timings.fitMs = ms;
+    timings.kind = kind;
+    setStatus(`Done in ${(ms / 1000).toFixed(1)} s.`);
+    setState("done");
+    setTimeout(requestSeries, 0); // once the finally below has cleared busy
+    return result.summary;
+  } catch (err) {
+    const canceled = err.message === "canceled";
+    showError(canceled ? "" : err.message);
+    setStatus(canceled ? "Canceled." : "The analysis stopped with an error.");
+    setState(!isReady ? "booting" : canceled ? "ready" : "error");
+    throw err;
+  } finally {
+    setBusy(false);
+  }
+}
+
+async function rethreshold(fields) {
+  if (!result) throw new Error("no result to rethreshold yet");
+  if (busy) throw new Error("an analysis is already running");
+  const t0 = performance.now();
+  stopSeries();
+  showError("");
+  setBusy(true);
+  try {
+    const msg = await request(Kind.rethreshold, fields, onProgress);
+    result.summary = JSON.parse(msg.summary);
+    result.hist = msg.hist;
+    for (const m of msg.maps) {
+      const i = result.maps.findIndex((x) => x.contrast === m.contrast && x.kind === m.kind);
+      if (i >= 0) result.maps[i] = m;
+      else result.maps.push(m);
+    }
+    view.selected = -1;
+    const tReply = performance.now();
+    const drawn = await showResult(true);
+    const ms = drawn - t0;
+    timings.rethresholdMs = ms;
+    timings.rethresholdWorkerMs = tReply - t0;
+    timings.rethresholdPaintedMs = performance.now() - t0;
+    setState("done");
+    setTimeout(requestSeries, 0); // the series may have been stopped above
+    timings.rethresholdGo = msg.timing || null;
+    return { ms, workerMs: tReply - t0, paintedMs: performance.now() - t0, go: msg.timing || null, summary: result.summary };
+  } catch (err) {
+    showError(err.message);
+    throw err;
+  } finally {
+    setBusy(false);
+  }
+}
+
+function startCursor() {
+  return result.dims.map((n) => Math.floor(n / 2));
+}
+
+function mapOf(contrast, kind) {
+  const m = result.maps.find((x) => x.contrast === contrast && x.kind === kind);
+  return m ? m.data : null;
+}
+
+// ---- drawing --------------------------------------------------------------
+
+let overlay = null; // z where the thresholded map survives, 0 elsewhere
+let bgRange = null;
+
+function prepareOverlay() {
+  const z = mapOf(view.contrast, "z");
+  const th = mapOf(view.contrast, "thresholded");
+  overlay = new Float32Array(z ? z.length : 0);
+  let lo = Infinity, hi = 0, pos = false, neg = false;
+  if (z && th) {
+    for (let i = 0; i < z.length; i++) {
+      if (th[i] !== 0 && Number.isFinite(z[i]) && z[i] !== 0) {
+        overlay[i] = z[i];
+        const a = Math.abs(z[i]);
+        if (a < lo) lo = a;
+        if (a > hi) hi = a;
+        if (z[i] > 0) pos = true;
+        else neg = true;
+      }
+    }
+  }
+  if (!(hi > 0)) lo = hi = 0;
+  return { lo, hi: hi > lo ? hi : lo + 1e-6, any: hi > 0, pos, neg };
+}
+
+function sizeCanvas(c) {
+  const dpr = window.devicePixelRatio || 1;
+  const w = Math.max(1, Math.round(c.clientWidth * dpr));
+  const h = Math.max(1, Math.round(c.clientHeight * dpr));
+  if (c.width !== w) c.width = w;
+  if (c.height !== h) c.height = h;
+  return dpr;
+}
+
+let ov = null;
+
+function drawSlices() {
+  const c = $("slices");
+  const dpr = sizeCanvas(c);
+  view.geom = slices.render(
+    c,
+    {
+      dims: result.dims, voxelMM: result.voxelMM, affine: result.affine,
+      background: mapOf(-1, "mean"), overlay, outline: $("show-truth").checked ? result.truth : null, cursor: view.cursor,
+    },
+    { bgRange, overlayRange: [ov.lo, ov.hi], dpr },
+  );
+  const [i, j, k] = view.cursor;
+  const idx = i + result.dims[0] * (j + result.dims[1] * k);
+  const w = slices.world(result.affine, view.cursor);
+  const z = mapOf(view.contrast, "z");
+  const stat = mapOf(view.contrast, "stat");
+  const con = result.summary.contrasts[view.contrast];
+  const inMask = result.mask[idx] === 1;
+  $("readout").textContent =
+    `ijk ${i}, ${j}, ${k}  \u00b7  ${w.map((v) => v.toFixed(1)).join(", ")} mm  \u00b7  ` +
+    (inMask ? `z ${z[idx].toFixed(2)}  ${con.kind} ${stat[idx].toFixed(2)}` : "outside the mask");
+}
+
+// drawAll draws every view; partial (after a rethreshold) only those that
+// depend on the threshold.
+function drawAll(partial = false) {
+  ov = prepareOverlay();
+  drawSlices();
+  const lc = $("legend");
+  const dpr = sizeCanvas(lc);
+  legendView.render(lc, ov.any ? { lo: ov.lo, hi: ov.hi, label: "z", positive: ov.pos, negative: ov.neg } : null, { dpr });
+  const con = result.summary.contrasts[view.contrast];
+  clusterView.render($("clusters"), { clusters: con.clusters, kind: con.kind, correction: con.correction }, {
+    selected: view.selected,
+    onSelect: (i) => {
+      view.selected = i;
+      view.cursor = con.clusters[i].peak_ijk.slice();
+      drawAll();
+      requestSeries();
+    },
+  });
+  drawHistogram();
+  if (partial) return;
+  if (result.design) {
+    const dc = $("design");
+    designView.render(dc, result.design, { dpr: sizeCanvas(dc) });
+  }
+  drawSeries();
+  if (hrf) {
+    const hc = $("hrf");
+    hrfView.render(hc, hrf, { dpr: sizeCanvas(hc) });
+  }
+  $("motion-box").hidden = !result.motion;
+  $("export-motion").hidden = !result.motion;
+  if (result.motion) {
+    const mc = $("motion");
+    motionView.render(mc, result.motion, { dpr: sizeCanvas(mc) });
+  }
+}
+
+function drawHistogram() {
+  const h = (result.hist || []).find((x) => x.contrast === view.contrast);
+  const c = $("histogram");
+  const dpr = sizeCanvas(c);
+  if (h) histView.render(c, h, { dpr, log: $("hist-log").checked });
+}
+
+function drawSeries() {
+  const c = $("series");
+  const dpr = sizeCanvas(c);
+  const same = series && series.ijk.every((v, a) => v === view.cursor[a]);
+  seriesView.render(c, same ? series : null, { dpr, note: $("series-state").textContent });
+}
+
+// requestSeries asks the worker for the series at the cursor, ending any
+// earlier request first; a voxel outside the mask gets a note instead.
+let seriesTimer = 0;
+
+// stopSeries ends a pending or running series request, so that it does not
+// share the worker's one thread with a fit or a rethreshold.
+function stopSeries() {
+  clearTimeout(seriesTimer);
+  seriesTimer = 0;
+  if (seriesReq) {
+    worker.postMessage(message(nextId++, Kind.cancel, { target: seriesReq.id }));
+    seriesReq = null;
+    setSeriesState("", false);
+  }
+}
+
+function requestSeries() {
+  stopSeries();
+  if (!result || busy) return;
+  const [i, j, k] = view.cursor;
+  if (series && series.ijk[0] === i && series.ijk[1] === j && series.ijk[2] === k) return;
+  const idx = i + result.dims[0] * (j + result.dims[1] * k);
+  if (result.mask[idx] !== 1) {
+    setSeriesState("No time series outside the analysis mask.", false);
+    drawSeries();
+    return;
+  }
+  seriesTimer = setTimeout(() => {
+    seriesTimer = 0;
+    setSeriesState("reading time series…", true);
+    drawSeries();
+    const req = request(Kind.series, { ijk: [i, j, k] }, (m) => {
+      setSeriesState(`reading time series… volume ${m.done} of ${m.total}`, true);
+    }, true);
+    seriesReq = req;
+    req.then(
+      (msg) => {
+        if (seriesReq !== req) return;
+        seriesReq = null;
+        series = msg.series;
+        setSeriesState(`Observed series and model fit at voxel ${series.ijk.join(", ")}.`, false);
+        if (result) drawSeries();
+      },
+      (err) => {
+        if (seriesReq !== req) return;
+        seriesReq = null;
+        setSeriesState(err.message === "canceled" ? "Canceled." : "Time series: " + err.message, false);
+        if (result) drawSeries();
+      },
+    );
+  }, 120);
+}
+
+function setSeriesState(text, running) {
+  $("series-state").textContent = text;
+  $("series-cancel").hidden = !running;
+}
+
+// ---- exports --------------------------------------------------------------
+
+const exportURLs = [];
+function revokeExports() {
+  while (exportURLs.length) URL.revokeObjectURL(exportURLs.pop());
+}
+
+function canvasBlob(id) {
+  return new Promise((resolve, reject) => {
+    $(id).toBlob((b) => (b ? resolve(b) : reject(new Error(`${id}: the picture could not be made`))), "image/png");
+  });
+}
+
+// exportFile makes one downloadable file and resolves with {name, url,
+// size, type}; key is "summary", "clusters", "report", "design", "motion",
+// "map:<file name>" or "png:<slices|series|histogram|design>".
+async function exportFile(key) {
+  if (!result) throw new Error("nothing to save yet: no result");
+  let blob, name;
+  if (key.startsWith("png:")) {
+    const id = key.slice(4);
+    if (!["slices", "series", "histogram", "design"].includes(id)) throw new Error(`unknown picture ${id}`);
+    blob = await canvasBlob(id);
+    name = (id === "series" ? "timeseries" : id) + ".png";
+  } else if (key === "summary") {
+    blob = new Blob([JSON.stringify(result.summary, null, 2) + "\n"], { type: "application/json" });
+    name = "summary.json";
+  } else {
+    const fields = { what: key, index: -1 };
+    if (key.startsWith("map:")) {
+      const f = result.files.find((x) => x.file === key.slice(4));
+      if (!f) throw new Error(`no map named ${key.slice(4)}`);
+      fields.what = "map";
+      fields.index = f.index;
+    }
+    const msg = await request(Kind.export, fields, null, true);
+    blob = new Blob([msg.bytes], { type: msg.type });
+    name = msg.name;
+  }
+  const url = URL.createObjectURL(blob);
+  exportURLs.push(url);
+  return { name, url, size: blob.size, type: blob.type };
+}
+
+async function saveExport(key) {
+  $("export-state").textContent = "Preparing…";
+  try {
+    const f = await exportFile(key);
+    const a = document.createElement("a");
+    a.href = f.url;
+    a.download = f.name;
+    a.hidden = true;
+    document.body.appendChild(a);
+    a.click();
+    a.remove();
+    $("export-state").textContent = `${f.name} (${formatBytes(f.size)}) made here and handed to the browser's download.`;
+  } catch (err) {
+    $("export-state").textContent = "Could not save: " + err.message;
+  }
+}
+
+function fillExportMaps() {
+  const sel = $("export-map");
+  sel.textContent = "";
+  for (const f of result.files) {
+    const o = document.createElement("option");
+    o.value = f.file;
+    o.textContent = f.file;
+    sel.appendChild(o);
+  }
+}
+
+function describe(s, con) {
+  const parts = [];
+  parts.push(`${s.mask_voxels} voxels in mask`);
+  parts.push(`df ${s.df.toFixed(1)}`);
+  if (s.fwhm_mm) parts.push(`smoothness ${s.fwhm_mm.map((v) => v.toFixed(1)).join(" \u00d7 ")} mm`);
+  if (con) {
+    parts.push(`${con.correction} at ${con.alpha}`);
+    parts.push(con.z_threshold === null ? "no voxel can pass" : `z \u2265 ${con.z_threshold.toFixed(2)}`);
+    parts.push(`${con.surviving_voxels} surviving voxels`);
+  }
+  return parts.join("  \u00b7  ");
+}
+
+// showResult fills the result panel and resolves after the browser has
+// painted it.
+async function showResult(partial = false) {
+  $("empty-note").hidden = true;
+  $("results").hidden = false;
+  const s = result.summary;
+  const pickEl = $("contrast-pick");
+  pickEl.textContent = "";
+  s.contrasts.forEach((c, i) => {
+    const o = document.createElement("option");
+    o.value = String(i);
+    o.textContent = `${c.name} (${c.kind})`;
+    pickEl.appendChild(o);
+  });
+  pickEl.value = String(view.contrast);
+  // The inference fields show the settings of the result on screen.
+  const shown = s.contrasts[view.contrast];
+  if (shown) {
+    $("correct").value = shown.correction;
+    $("alpha").value = String(shown.alpha);
+    if (shown.cluster_p) $("cluster-p").value = String(shown.cluster_p);
+  }
+  $("facts").textContent = describe(s, s.contrasts[view.contrast]);
+  $("outline-note").hidden = !result.truth;
+  fillExportMaps();
+  const warnings = s.warnings || [];
+  $("warnings").textContent = "";
+  for (const w of warnings) {
+    const li = document.createElement("li");
+    li.textContent = w;
+    $("warnings").appendChild(li);
+  }
+  $("warnings-box").hidden = warnings.length === 0;
+  if (!partial) bgRange = slices.displayRange(mapOf(-1, "mean"), result.mask);
+  drawAll(partial);
+  const drawn = performance.now();
+  await new Promise((r) => requestAnimationFrame(() => requestAnimationFrame(r)));
+  return drawn;
+}
+
+// ---- inputs ---------------------------------------------------------------
+
+function setFile(role, file) {
+  files[role] = file;
+  const box = document.querySelector(`.drop[data-role="${role}"]`);
+  box.classList.toggle("chosen", !!file);
+  $(`${role}-name`).textContent = file ? `${file.name} (${formatBytes(file.size)})` : "none chosen";
+}
+
+function formatBytes(n) {
+  if (n >= 1 << 20) return `${(n / (1 << 20)).toFixed(1)} MiB`;
+  if (n >= 1 << 10) return `${(n / (1 << 10)).toFixed(0)} KiB`;
+  return `${n} bytes`;
+}
+
+function wireInputs() {
+  for (const role of Object.keys(files)) {
+    const input = $(`${role}-file`);
+    input.addEventListener("change", () => setFile(role, input.files[0] || null));
+    const box = document.querySelector(`.drop[data-role="${role}"]`);
+    box.addEventListener("dragover", (e) => {
+      e.preventDefault();
+      box.classList.add("over");
+    });
+    box.addEventListener("dragleave", () => box.classList.remove("over"));
+    box.addEventListener("drop", (e) => {
+      e.preventDefault();
+      box.classList.remove("over");
+      const f = e.dataTransfer.files[0];
+      if (f) setFile(role, f);
+    });
+  }
+  // A file dropped outside the boxes must not navigate away from the page.
+  window.addEventListener("dragover", (e) => e.preventDefault());
+  window.addEventListener("drop", (e) => e.preventDefault());
+
+  $("settings").addEventListener("submit", (e) => {
+    e.preventDefault();
+    if (!files.bold || !files.events) {
+      showError("Choose a run (4D NIfTI) and its events table first.");
+      return;
+    }
+    const s = settingsFromForm();
+    analyze({ ...s, bold: files.bold, events: files.events, confounds: files.confounds || undefined, mask: files.mask || undefined }).catch(() => {});
+  });
+  $("demo").addEventListener("click", () => {
+    const s = settingsFromForm();
+    delete s.contrasts;
+    run(Kind.demo, { ...s, seed: 1 }).catch(() => {});
+  });
+  $("rethreshold").addEventListener("click", () => {
+    const s = settingsFromForm();
+    rethreshold({ correct: s.correct, alpha: s.alpha, clusterP: s.clusterP }).catch(() => {});
+  });
+  $("cancel").addEventListener("click", cancel);
+  $("show-truth").addEventListener("change", () => result && drawSlices());
+  $("hist-log").addEventListener("change", () => result && drawHistogram());
+  $("series-cancel").addEventListener("click", () => {
+    if (seriesReq) worker.postMessage(message(nextId++, Kind.cancel, { target: seriesReq.id }));
+  });
+  for (const b of document.querySelectorAll("button[data-export]")) {
+    b.addEventListener("click", () => saveExport(b.dataset.export));
+  }
+  $("export-map-go").addEventListener("click", () => saveExport("map:" + $("export-map").value));
+  $("contrast-pick").addEventListener("change", (e) => {
+    view.contrast = Number(e.target.value);
+    view.selected = -1;
+    $("facts").textContent = describe(result.summary, result.summary.contrasts[view.contrast]);
+    drawAll();
+  });
+  $("slices").addEventListener("click", (e) => {
+    if (!result || !view.geom) return;
+    const c = $("slices");
+    const r = c.getBoundingClientRect();
+    const x = ((e.clientX - r.left) * c.width) / r.width;
+    const y = ((e.clientY - r.top) * c.height) / r.height;
+    const ijk = slices.pick(view.geom, x, y, view.cursor);
+    if (ijk) {
+      view.cursor = ijk;
+      view.selected = -1;
+      drawAll();
+      requestSeries();
+    }
+  });
+  window.addEventListener("resize", () => result && drawAll());
+}
+
+// ---- automation entry -----------------------------------------------------
+
+const blobOrText = (v) => v === undefined || v === null || typeof v === "string" || v instanceof Blob;
+
+// analyze runs a fit from script (interface.md, "In the browser") and
+// resolves with the summary once the views show the result.
+function analyze(opts) {
+  if (!opts || !(opts.bold instanceof Blob)) return Promise.reject(new Error("analyze: bold must be a File or Blob"));
+  if (!(opts.events instanceof Blob) && typeof opts.events !== "string") {
+    return Promise.reject(new Error("analyze: events must be a File, Blob or text"));
+  }
+  if (!blobOrText(opts.confounds)) return Promise.reject(new Error("analyze: confounds must be a File, Blob or text"));
+  if (opts.mask !== undefined && opts.mask !== null && !(opts.mask instanceof Blob)) {
+    return Promise.reject(new Error("analyze: mask must be a File or Blob"));
+  }
+  if (opts.correct !== undefined && !METHODS.includes(opts.correct)) {
+    return Promise.reject(new Error(`analyze: correct "${opts.correct}", want one of ${METHODS.join(", ")}`));
+  }
+  const name = (v, def) => (v && typeof v.name === "string" && v.name ? v.name : def);
+  const fields = {
+    bold: opts.bold, boldName: name(opts.bold, "bold.nii.gz"),
+    events: opts.events, eventsName: name(opts.events, "events.tsv"),
+    contrasts: Array.isArray(opts.contrasts) ? opts.contrasts : [],
+    correct: opts.correct, alpha: opts.alpha, clusterP: opts.clusterP ?? opts.cluster_p,
+    smooth: opts.smooth, highpass: opts.highpass, noise: opts.noise, tr: opts.tr,
+    hrfDerivs: !!(opts.hrfDerivs ?? opts.hrf_derivs), modulate: opts.modulate,
+    realign: !!opts.realign,
+  };
+  // inflate: "wasm" makes the worker inflate a gzip run with the Go decoder
+  // instead of the browser's DecompressionStream (for benchmarks).
+  if (opts.inflate) fields.inflate = opts.inflate;
+  if (opts.confounds !== undefined && opts.confounds !== null) {
+    fields.confounds = opts.confounds;
+    fields.confoundsName = name(opts.confounds, "confounds.tsv");
+  }
+  if (opts.mask) {
+    fields.mask = opts.mask;
+    fields.maskName = name(opts.mask, "mask.nii.gz");
+  }
+  return run(Kind.analyze, fields);
+}
+
+window.winnow = Object.freeze({
+  ready,
+  analyze,
+  // demo runs the built-in synthetic scenario; opts as analyze without files and contrasts.
+  demo: (opts = {}) => run(Kind.demo, { ...opts, seed: opts.seed ?? 1 }),
+  // rethreshold re-infers the shown result: {correct, alpha, clusterP}; it
+  // resolves with {ms, summary}, ms from the request to the redrawn views.
+  rethreshold: (opts = {}) => rethreshold({ correct: opts.correct, alpha: opts.alpha, clusterP: opts.clusterP ?? opts.cluster_p }),
+  // summary is the summary the page shows now, or null.
+  summary: () => (result ? JSON.parse(JSON.stringify(result.summary)) : null),
+  // timings of the last fit (fitMs: from the request to the drawn views;
+  // kind: "analyze" or "demo") and the last rethreshold (rethresholdMs).
+  timings,
+  // exportFile(key) makes a file as the Save buttons do, without
+  // downloading it: {name, url (blob:), size, type}.
+  exportFile,
+  // series() resolves with the series on screen once it has arrived: {ijk,
+  // time, observed, fitted, rho}, or null when none is shown.
+  series: () => waitSeries(),
+  // gunzipTiming(blob, how) inflates a gzip Blob in the worker, how
+  // "stream" (the browser's DecompressionStream) or "wasm" (the Go
+  // decoder), and resolves with {bytes, ms}.
+  gunzipTiming: (blob, how) => request(Kind.gunzip, { blob, how }, null, true).then((m) => ({ bytes: m.bytes, ms: m.ms })),
+});
+
+function waitSeries() {
+  return new Promise((resolve) => {
+    (function check() {
+      if (seriesReq || seriesTimer) return setTimeout(check, 50);
+      resolve(series && series.ijk.every((v, a) => v === view.cursor[a]) ? series : null);
+    })();
+  });
+}
+
+wireInputs();
+startWorker();
+ready.then(() => setBusy(false), () => {});

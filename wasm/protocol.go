@@ -1,0 +1,102 @@
+package main
+
+// The page <-> worker protocol, version 1. site/protocol.js carries the same
+// text; change both together.
+//
+// Every message is a plain object {v: 1, id, kind, ...fields}. id is a
+// positive integer the page picks for each request; every reply carries the
+// id of the request it answers. A message whose v is not 1 is answered with
+// an error.
+//
+// page -> worker
+//
+//	boot         wasm: ArrayBuffer | url: string. Seen only by site/worker.js,
+//	             which starts the Go program with it.
+//	analyze      bold: Blob, boldName: string,
+//	             events: Blob | string, eventsName: string,
+//	             confounds?: Blob | string, confoundsName?: string,
+//	             mask?: Blob, maskName?: string,
+//	             contrasts: string[] (SPECs "NAME=EXPR"),
+//	             correct: string (none, bonferroni, holm, fdr-bh, fdr-by, fwe-rft, cluster-rft),
+//	             alpha: number, clusterP: number, smooth: number (FWHM mm),
+//	             highpass: number (s; 0 off), noise: "ar1" | "ols",
+//	             tr?: number (s; 0 or absent: from the header),
+//	             hrfDerivs?: boolean, modulate?: string[], realign?: boolean.
+//	             inflate?: "stream" | "wasm" (how a gzip run is inflated: the
+//	             browser's DecompressionStream, the default, or the Go decoder).
+//	             An absent or zero number means the documented default.
+//	demo         seed: number, and the settings of analyze except the files
+//	             and contrasts: the built-in synthetic scenario is generated
+//	             and fitted with its own contrast.
+//	rethreshold  correct, alpha, clusterP: infer the last result again
+//	             under new settings, without refitting.
+//	series       ijk: [i, j, k]: the time series of one voxel of the last
+//	             fit and the model fitted to it. The worker reads the run
+//	             again (the same Blob, or the demo's bytes), so it takes
+//	             one more pass over the file; cancel ends it.
+//	export       what: "map" (with index into the result's files),
+//	             "clusters", "summary", "report", "design" or "motion":
+//	             one file of the last result, encoded by the Go pipeline.
+//	gunzip       blob: Blob, how: "stream" | "wasm": inflate a gzip Blob to
+//	             the end and report the time (a benchmark hook).
+//	cancel       target: the id of a running request. It has no reply of its
+//	             own: the target ends with an error "canceled".
+//
+// worker -> page
+//
+//	ready        version: string, hrf: {t, h: Float64Array} (the canonical
+//	             response kernel, sampled every 0.1 s over 0 to 32 s). Sent
+//	             once, with id 0, when the Go program has started.
+//	progress     stage: string, done: number, total: number.
+//	result       summary: string (the text of summary.json),
+//	             dims: [nx, ny, nz], voxelMM: [3]number,
+//	             affine: number[16] (4x4, row-major, 0-based voxel -> world mm),
+//	             maps: [{contrast: number (-1 for run-level maps),
+//	                     kind: "mean" | "z" | "stat" | "thresholded",
+//	                     name: string, data: Float32Array (nx*ny*nz,
+//	                     index i + nx*(j + ny*k))}],
+//	             mask: Uint8Array (1 in the analysis mask),
+//	             design: {rows, cols, names: string[], data: Float64Array (row-major)},
+//	             truth?: Float32Array (demo only: 1 inside planted activation),
+//	             files: [{index, file, kind, contrast}] (every map the fit
+//	             made, for export),
+//	             hist: [{contrast, edges, counts, curveZ, curveY: Float64Array,
+//	                     n, threshold: number | null, corrected: boolean,
+//	                     label: string}] (in-mask z histogram, null density
+//	                     N·w·φ(z), threshold line),
+//	             motion?: {fd: Float64Array (mm per volume), meanFD, maxFD}
+//	             (realigned runs only),
+//	             partial: boolean (true for rethreshold: only the summary,
+//	             hist and the thresholded maps; dims, affine, mask, design,
+//	             files and motion are absent).
+//	             timing: {name: ms} (the worker's step times, for benchmarks).
+//	result of series: series: {ijk, time, observed, fitted: Float64Array, rho}.
+//	result of export: name: string, type: string (MIME), bytes: Uint8Array.
+//	result of gunzip: bytes: number (decompressed), ms: number.
+//	error        message: string, one line, the text of the Go error.
+//
+// Typed arrays in a result are transferred, not copied.
+
+// ProtocolVersion is the v field of every message.
+const ProtocolVersion = 1
+
+// Message kinds.
+const (
+	KindAnalyze     = "analyze"
+	KindDemo        = "demo"
+	KindRethreshold = "rethreshold"
+	KindCancel      = "cancel"
+	KindSeries      = "series"
+	KindExport      = "export"
+	KindGunzip      = "gunzip"
+	KindReady       = "ready"
+	KindProgress    = "progress"
+	KindResult      = "result"
+	KindError       = "error"
+)
+
+// chunkBytes is how much of a Blob one FileReaderSync call reads.
+const chunkBytes = 4 << 20
+
+// requestKinds are the kinds a page may send, for the error on an unknown one.
+var requestKinds = []string{KindAnalyze, KindDemo, KindRethreshold, KindSeries, KindExport, KindGunzip, KindCancel}
