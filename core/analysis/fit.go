@@ -44,6 +44,7 @@ type FitOptions struct {
 	HRFDerivs   bool
 	Modulate    []string
 	Realign     bool // rigid-body realignment of every volume to the first, in the same pass
+	NullCheck   int  // chance designs of the null check (--null-check K); 0: off
 	Limits      nifti.Limits
 	Progress    func(stage string, done, total int)
 }
@@ -76,8 +77,9 @@ type FitResult struct {
 	// per volume) when the run was realigned; nil otherwise.
 	MotionTSV []byte
 
-	voxels       []int32 // in-mask linear indices, ascending
-	keep         []int   // for each of voxels, its index in the fit's voxel list
+	null         *nullResult // the null check, when one was run
+	voxels       []int32     // in-mask linear indices, ascending
+	keep         []int       // for each of voxels, its index in the fit's voxel list
 	baseWarnings []string
 	resels       infer.Resels
 	fwhmVox      [3]float64
@@ -92,6 +94,7 @@ type contrastState struct {
 	stat, z    []float64 // per in-mask voxel
 	logp       []float64 // ln upper-tail p per in-mask voxel
 	survive    []bool    // per in-mask voxel, under the current threshold
+	order      []int32   // voxels by ascending p, computed on first use
 }
 
 func (o *FitOptions) defaults() {
@@ -263,6 +266,10 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 		}
 		return nil, inputErrf(f, "the analysis mask is empty; want at least one brain voxel")
 	}
+	chance, err := newNullCheck(opt.NullCheck, ev, des, cons, opt, nvol, tr, grid.Dims, voxels)
+	if err != nil {
+		return nil, err
+	}
 
 	// The stream: smoothing, then the sums.
 	var sm *smooth.Smoother
@@ -314,6 +321,7 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 			v = smoothed
 		}
 		acc.AddVolume(v)
+		chance.AddVolume(v)
 		if t > 0 {
 			free <- vol // back to the reader for reuse
 		}
@@ -418,6 +426,9 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 	sum.Warnings = append(sum.Warnings, warnings...)
 	res.addRunMaps(fit)
 	if err := res.Rethreshold(opt.Correct, opt.Alpha, opt.ClusterP); err != nil {
+		return nil, err
+	}
+	if err := res.finishNullCheck(ctx, chance, fit, opt); err != nil {
 		return nil, err
 	}
 	return res, nil

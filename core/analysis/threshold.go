@@ -176,6 +176,7 @@ func (r *FitResult) Rethreshold(method infer.Method, alpha, clusterP float64) er
 		}
 	}
 	r.Summary.Warnings = warn
+	r.applyNullCheck(method, alpha, clusterP)
 	return nil
 }
 
@@ -237,15 +238,18 @@ func (r *FitResult) threshold(cs *contrastState, out *report.Contrast, method in
 		peakP = func(int) *float64 { return nil }
 	case infer.MethodBonferroni, infer.MethodHolm, infer.MethodFDRBH, infer.MethodFDRBY:
 		var adj infer.Adjusted
+		if method != infer.MethodBonferroni && cs.order == nil {
+			cs.order = infer.Order(cs.logp) // fixed per contrast: kept for re-thresholding
+		}
 		switch method {
 		case infer.MethodBonferroni:
 			adj = infer.Bonferroni(cs.logp, alpha)
 		case infer.MethodHolm:
-			adj = infer.Holm(cs.logp, alpha)
+			adj = infer.HolmOrdered(cs.logp, cs.order, alpha)
 		case infer.MethodFDRBH:
-			adj = infer.BH(cs.logp, alpha)
+			adj = infer.BHOrdered(cs.logp, cs.order, alpha)
 		default:
-			adj = infer.BY(cs.logp, alpha)
+			adj = infer.BYOrdered(cs.logp, cs.order, alpha)
 		}
 		for k, lp := range cs.logp {
 			cs.survive[k] = lp <= adj.LogPThreshold

@@ -103,10 +103,20 @@ func Bonferroni(logp []float64, alpha float64) Adjusted {
 // Holm adjusts ln p-values by Holm's step-down procedure: with p sorted ascending,
 // p̃_(i) = max_{j<=i} min(1, (m-j+1) p_(j)).
 func Holm(logp []float64, alpha float64) Adjusted {
+	return HolmOrdered(logp, order(logp), alpha)
+}
+
+// Order returns the indices of logp sorted by ascending p (ties by index):
+// the order Holm, BH and BY work in. A caller that adjusts the same p-values
+// at several levels computes it once and uses the Ordered variants.
+func Order(logp []float64) []int32 { return order(logp) }
+
+// HolmOrdered is Holm with ord = Order(logp) given.
+func HolmOrdered(logp []float64, ord []int32, alpha float64) Adjusted {
 	a := Adjusted{LogP: make([]float64, len(logp))}
 	m := len(logp)
 	run := math.Inf(-1)
-	for r, i := range order(logp) {
+	for r, i := range ord {
 		v := math.Min(0, math.Log(float64(m-r))+cleanLogP(logp[i]))
 		run = math.Max(run, v)
 		a.LogP[i] = run
@@ -118,24 +128,38 @@ func Holm(logp []float64, alpha float64) Adjusted {
 // BH adjusts ln p-values by the Benjamini–Hochberg step-up procedure (FDR at q = alpha):
 // p̃_(i) = min_{j>=i} min(1, m p_(j) / j).
 func BH(logp []float64, alpha float64) Adjusted {
-	return stepUp(logp, alpha, 0)
+	return stepUp(logp, order(logp), alpha, 0)
+}
+
+// BHOrdered is BH with ord = Order(logp) given.
+func BHOrdered(logp []float64, ord []int32, alpha float64) Adjusted {
+	return stepUp(logp, ord, alpha, 0)
+}
+
+// BYOrdered is BY with ord = Order(logp) given.
+func BYOrdered(logp []float64, ord []int32, alpha float64) Adjusted {
+	return stepUp(logp, ord, alpha, byLogC(len(logp)))
 }
 
 // BY adjusts ln p-values by the Benjamini–Yekutieli procedure (FDR under any dependence):
 // p̃_(i) = min_{j>=i} min(1, c(m) m p_(j) / j), c(m) = Σ_{i=1}^m 1/i.
 func BY(logp []float64, alpha float64) Adjusted {
-	c := 0.0
-	for i := len(logp); i >= 1; i-- { // smallest terms first
-		c += 1 / float64(i)
-	}
-	return stepUp(logp, alpha, math.Log(c))
+	return stepUp(logp, order(logp), alpha, byLogC(len(logp)))
 }
 
-func stepUp(logp []float64, alpha, logC float64) Adjusted {
+// byLogC is ln c(m), c(m) = Σ_{i=1}^m 1/i.
+func byLogC(m int) float64 {
+	c := 0.0
+	for i := m; i >= 1; i-- { // smallest terms first
+		c += 1 / float64(i)
+	}
+	return math.Log(c)
+}
+
+func stepUp(logp []float64, idx []int32, alpha, logC float64) Adjusted {
 	a := Adjusted{LogP: make([]float64, len(logp))}
 	m := len(logp)
 	lm := math.Log(float64(m)) + logC
-	idx := order(logp)
 	run := 0.0
 	for r := m - 1; r >= 0; r-- {
 		i := idx[r]

@@ -16,6 +16,7 @@ import (
 	"winnow/core/glm"
 	"winnow/core/infer"
 	"winnow/core/nifti"
+	"winnow/core/nullcheck"
 )
 
 const usage = `usage: winnow COMMAND [flags]
@@ -230,7 +231,7 @@ func runFit(args []string, stdout, stderr io.Writer) error {
 	clusterP := fs.Float64("cluster-p", analysis.DefaultClusterP, "cluster-forming p (cluster methods)")
 	derivs := fs.Bool("hrf-derivs", false, "add temporal and dispersion derivatives of the HRF")
 	realign := fs.Bool("realign", false, "realign every volume to the first, in the same pass; writes motion.tsv")
-	nullCheck := fs.Int("null-check", 0, "null designs to check chance findings (not available in this version)")
+	nullCheck := fs.Int("null-check", 0, "chance designs fitted beside the real one to measure the settings' familywise error (40 is a good choice; 0: off)")
 	if err := parse(fs, args); err != nil {
 		return err
 	}
@@ -242,8 +243,8 @@ func runFit(args []string, stdout, stderr io.Writer) error {
 			return usageError{fmt.Sprintf("fit: --%s is required", req.name)}
 		}
 	}
-	if *nullCheck != 0 {
-		return &analysis.InputError{File: "--null-check", Err: errors.New("the null check is not available in this version")}
+	if *nullCheck < 0 {
+		return &analysis.InputError{File: "--null-check", Err: fmt.Errorf("%d; want 0 (off) or a number of chance designs such as 40", *nullCheck)}
 	}
 	opt := analysis.FitOptions{
 		Contrasts:   contrasts,
@@ -255,6 +256,7 @@ func runFit(args []string, stdout, stderr io.Writer) error {
 		HRFDerivs:   *derivs,
 		Modulate:    modulate,
 		Realign:     *realign,
+		NullCheck:   *nullCheck,
 	}
 	switch *noise {
 	case "ar1":
@@ -349,6 +351,9 @@ func printSummary(w io.Writer, res *analysis.FitResult, dir string) {
 			thr = fmt.Sprintf("%s > %.3f", c.Kind, *c.StatThreshold)
 		}
 		fmt.Fprintf(w, "%s [%s, alpha %g, %s]: %d voxels in %d clusters\n", c.Name, label, c.Alpha, thr, c.SurvivingVoxels, len(c.Clusters))
+	}
+	if s.NullCheck != nil {
+		fmt.Fprintf(w, "null check: %s\n", nullcheck.Sentence(*s.NullCheck))
 	}
 	fmt.Fprintf(w, "wrote %s\n", filepath.Join(dir, "summary.json"))
 }

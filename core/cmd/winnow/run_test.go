@@ -81,7 +81,7 @@ func TestDemoInfoFit(t *testing.T) {
 	res := filepath.Join(t.TempDir(), "res")
 	code, out, stderr = runCLI("fit", "--bold", filepath.Join(dir, "bold.nii.gz"), "--events", filepath.Join(dir, "events.tsv"),
 		"--confounds", filepath.Join(dir, "confounds.tsv"), "--contrast", "count-watch=count - watch", "--correct", "cluster-rft",
-		"--cluster-p", "0.01", "--out", res)
+		"--cluster-p", "0.01", "--null-check", "10", "--out", res)
 	if code != 0 {
 		t.Fatalf("fit: exit %d: %s", code, stderr)
 	}
@@ -97,6 +97,10 @@ func TestDemoInfoFit(t *testing.T) {
 		t.Fatal(err)
 	}
 	var s struct {
+		NullCheck *struct {
+			Designs      int
+			WithFindings int `json:"with_findings"`
+		} `json:"null_check"`
 		Warnings  []string
 		Contrasts []struct {
 			Correction string
@@ -110,6 +114,9 @@ func TestDemoInfoFit(t *testing.T) {
 	}
 	if s.Contrasts[0].Correction != "cluster-rft" || len(s.Warnings) == 0 {
 		t.Errorf("summary: %+v", s)
+	}
+	if s.NullCheck == nil || s.NullCheck.Designs != 10 || !strings.Contains(out, "chance designs") {
+		t.Errorf("null check: %+v; stderr %q", s.NullCheck, stderr)
 	}
 	for _, c := range s.Contrasts[0].Clusters {
 		if c.PCorrected == nil || *c.PCorrected > 0.05 {
