@@ -24,12 +24,15 @@ type WriteOptions struct {
 	// (rounded to nearest, clamped). Float32 output always has slope 1,
 	// inter 0.
 	SclSlope, SclInter float64
+	// Uncompressed writes a plain .nii stream instead of gzip (for data
+	// that stays in memory, where compressing costs time and saves nothing).
+	Uncompressed bool
 }
 
 // Writer writes a gzip-compressed NIfTI-1 image volume by volume. It holds
 // one volume's bytes at a time.
 type Writer struct {
-	gz      *gzip.Writer
+	gz      io.WriteCloser // the gzip stream, or the plain writer with a no-op Close
 	dt      Datatype
 	slope   float64
 	inter   float64
@@ -102,9 +105,19 @@ func newWriter(w io.Writer, g Grid, nvols int, trSec float64, opt WriteOptions, 
 		return nil, err
 	}
 	hdr := encodeHeader1(g.Dims, ndim, nvols, trSec, geo, opt, slope, inter)
-	gz, err := gzip.NewWriterLevel(w, gzip.DefaultCompression)
-	if err != nil {
-		return nil, fmt.Errorf("nifti: %w", err)
+	var gz io.WriteCloser = nopCloser{w}
+	if !opt.Uncompressed {
+		// 4D runs are large: the fastest level costs a few percent of size
+		// and saves most of the time; 3D maps take the default level.
+		level := gzip.DefaultCompression
+		if ndim == 4 {
+			level = gzip.BestSpeed
+		}
+		z, err := gzip.NewWriterLevel(w, level)
+		if err != nil {
+			return nil, fmt.Errorf("nifti: %w", err)
+		}
+		gz = z
 	}
 	if _, err := gz.Write(hdr); err != nil {
 		return nil, fmt.Errorf("nifti: writing header: %w", err)
@@ -120,6 +133,11 @@ func newWriter(w io.Writer, g Grid, nvols int, trSec float64, opt WriteOptions, 
 		nvols: nvols,
 	}, nil
 }
+
+// nopCloser lets a plain writer stand where the gzip stream would.
+type nopCloser struct{ io.Writer }
+
+func (nopCloser) Close() error { return nil }
 
 // WriteVolume encodes and writes the next volume (g.Voxels() values; it
 // panics otherwise). Writing more than nvols volumes is an error.

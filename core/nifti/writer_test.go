@@ -248,3 +248,43 @@ func TestWriter4D(t *testing.T) {
 		}
 	}
 }
+
+// An uncompressed stream reads back like the gzip one (round trip).
+func TestWriterUncompressed(t *testing.T) {
+	g := Grid{Dims: [3]int{3, 2, 2}, VoxelMM: [3]float64{2, 2, 2}, Affine: [4][4]float64{{2, 0, 0, 0}, {0, 2, 0, 0}, {0, 0, 2, 0}, {0, 0, 0, 1}}, SformCode: 1}
+	var b bytes.Buffer
+	w, err := NewWriter(&b, g, 2, 1.5, WriteOptions{Datatype: Int16, Uncompressed: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	vols := [][]float32{{1, 2, 3, 4, 5, 6, 7, 8, 9, 10, 11, 12}, {-1, -2, -3, -4, -5, -6, -7, -8, -9, -10, -11, -12}}
+	for _, v := range vols {
+		if err := w.WriteVolume(v); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if b.Bytes()[0] == 0x1f {
+		t.Fatal("stream is gzip")
+	}
+	if got, want := b.Len(), 352+2*12*2; got != want {
+		t.Fatalf("%d bytes, want %d (header, extension bytes, data)", got, want)
+	}
+	r, err := NewReader(bytes.NewReader(b.Bytes()), Limits{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	got := make([]float32, 12)
+	for _, v := range vols {
+		if err := r.ReadVolume(got); err != nil {
+			t.Fatal(err)
+		}
+		for i := range v {
+			if got[i] != v[i] {
+				t.Fatalf("voxel %d: %v, want %v", i, got[i], v[i])
+			}
+		}
+	}
+}
