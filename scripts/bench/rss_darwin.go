@@ -1,0 +1,5 @@
+//go:build !js && !wasip1
+
+package main
+
+const rssInBytes = true

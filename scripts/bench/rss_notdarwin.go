@@ -1,0 +1,5 @@
+//go:build !darwin && !js && !wasip1
+
+package main
+
+const rssInBytes = false
