@@ -11,6 +11,7 @@ import * as histView from "./views/histogram.js";
 import * as seriesView from "./views/series.js";
 import * as hrfView from "./views/hrf.js";
 import * as motionView from "./views/motion.js";
+import * as nullView from "./views/nulldist.js";
 
 const $ = (id) => document.getElementById(id);
 
@@ -129,6 +130,7 @@ function cancel() {
   const p = pending.get(id);
   if (!p) return;
   worker.postMessage(message(nextId++, Kind.cancel, { target: id }));
+  stopHelpers(); // shards in helper workers end with them
   setTimeout(() => {
     if (!pending.has(id)) return;
     pending.delete(id);
@@ -138,6 +140,224 @@ function cancel() {
     p.reject(new Error("canceled"));
     startWorker();
   }, 5000);
+}
+
+// ---- group mode: shards over more workers -----------------------------------
+
+// helpers are extra workers for the shards of a group run, started on first
+// use; shard 1 runs in the main worker, which also merges.
+const helpers = []; // {worker, ready: Promise}
+
+function startHelper() {
+  let ok, fail;
+  const h = { ready: new Promise((a, b) => { ok = a; fail = b; }) };
+  let w;
+  if (workerSrc) {
+    w = new Worker(URL.createObjectURL(new Blob([workerSrc.textContent], { type: "text/javascript" })));
+    inflateWasm().then((buf) => w.postMessage({ kind: Kind.boot, wasm: buf }, [buf]), (err) => fail(err));
+  } else {
+    w = new Worker("worker.js");
+    w.postMessage({ kind: Kind.boot, url: new URL("winnow.wasm", location.href).href });
+  }
+  w.onmessage = (e) => {
+    const msg = e.data;
+    if (!msg || msg.v !== 1) return;
+    if (msg.kind === Kind.ready) return ok();
+    if (msg.id === 0 && msg.kind === Kind.error) return fail(new Error(msg.message));
+    onWorkerMessage(msg);
+  };
+  w.onerror = (e) => {
+    e.preventDefault();
+    fail(new Error("a helper worker failed: " + (e.message || "unknown error")));
+  };
+  h.worker = w;
+  helpers.push(h);
+  return h;
+}
+
+function stopHelpers() {
+  while (helpers.length) helpers.pop().worker.terminate();
+}
+
+// requestOn sends one side request to a given worker.
+function requestOn(w, kind, fields, progress) {
+  const id = nextId++;
+  return new Promise((resolve, reject) => {
+    pending.set(id, { resolve, reject, progress });
+    w.postMessage(message(id, kind, fields));
+  });
+}
+
+// groupWorkers is how many workers a group run uses by default: the
+// browser's logical processors, at most 4.
+function groupWorkers() {
+  return Math.max(1, Math.min(4, navigator.hardwareConcurrency || 1));
+}
+
+const groupFiles = { maps: [], design: null, background: null };
+
+function groupSettingsFromForm() {
+  const num = (id) => {
+    const v = $(id).value.trim();
+    return v === "" ? 0 : Number(v);
+  };
+  return {
+    contrasts: $("g-contrasts").value.split("\n").map((x) => x.trim()).filter(Boolean),
+    correct: $("g-correct").value,
+    perms: num("g-perms"),
+    seed: $("g-seed").value.trim() === "" ? undefined : num("g-seed"),
+    alpha: num("g-alpha"),
+    clusterP: num("g-cluster-p"),
+  };
+}
+
+// runGroup runs a group analysis over n workers (shard k of n in each, then
+// the merge in the main worker; n = 1: one plain run) and shows the result.
+async function runGroup(fields, n) {
+  await ready;
+  if (busy) throw new Error("an analysis is already running");
+  n = Math.max(1, Math.min(8, Math.floor(n || groupWorkers())));
+  stopSeries();
+  showError("");
+  setBusy(true);
+  setState("running");
+  setStatus(fields.demo ? "Generating and analysing the group demo\u2026" : "Running the group analysis\u2026");
+  const t0 = performance.now();
+  const parametric = !["fwe-perm", "cluster-perm", "tfce"].includes(fields.correct || "fwe-perm");
+  if (parametric) n = 1; // no permutations to share
+  try {
+    let msg;
+    if (n === 1) {
+      msg = await request(Kind.group, fields, onProgress);
+    } else {
+      while (helpers.length < n - 1) startHelper();
+      await Promise.all(helpers.slice(0, n - 1).map((h) => h.ready));
+      const first = request(Kind.group, { ...fields, shard: 1, shards: n }, onProgress);
+      const rest = helpers.slice(0, n - 1).map((h, i) => requestOn(h.worker, Kind.group, { ...fields, shard: i + 2, shards: n }));
+      const parts = await Promise.all([first, ...rest]);
+      setStatus("Merging the shards\u2026");
+      msg = await request(Kind.groupMerge, { ...fields, shards: parts.map((p) => p.shard) }, onProgress);
+    }
+    result = {
+      summary: JSON.parse(msg.summary),
+      dims: msg.dims, voxelMM: msg.voxelMM, affine: msg.affine,
+      maps: msg.maps, mask: msg.mask, design: msg.design || null, truth: null,
+      hist: msg.hist, motion: null, files: [], mode: "group",
+      nullCheck: msg.nullCheck || null, nullHist: msg.nullHist || [], nullCheckMade: null,
+    };
+    series = null;
+    view = { contrast: 0, cursor: startCursor(), selected: -1, geom: null };
+    const c0 = result.summary.contrasts[0];
+    if (c0 && c0.clusters.length > 0) {
+      view.cursor = c0.clusters[0].peak_ijk.slice();
+      view.selected = 0;
+    }
+    await showResult();
+    const ms = performance.now() - t0;
+    timings.groupMs = ms;
+    timings.groupWorkers = n;
+    setStatus(`Done in ${(ms / 1000).toFixed(1)} s on ${n} worker${n > 1 ? "s" : ""}.`);
+    setState("done");
+    return result.summary;
+  } catch (err) {
+    const canceled = err.message === "canceled";
+    showError(canceled ? "" : err.message);
+    setStatus(canceled ? "Canceled." : "The analysis stopped with an error.");
+    setState(!isReady ? "booting" : canceled ? "ready" : "error");
+    throw err;
+  } finally {
+    setBusy(false);
+  }
+}
+
+// group runs a group analysis from script: {demo: true} or {maps: [Blob],
+// design?: Blob | string, mask?: Blob, contrasts, correct, perms, seed,
+// alpha, clusterP, workers}; it resolves with the summary once the views
+// show it.
+function group(opts = {}) {
+  const fields = {
+    demo: !!opts.demo, contrasts: Array.isArray(opts.contrasts) ? opts.contrasts : [],
+    correct: opts.correct || "fwe-perm", perms: opts.perms, seed: opts.seed, alpha: opts.alpha,
+    clusterP: opts.clusterP ?? opts.cluster_p,
+  };
+  if (!fields.demo) {
+    if (!Array.isArray(opts.maps) || opts.maps.length < 2 || !opts.maps.every((m) => m instanceof Blob)) {
+      return Promise.reject(new Error("group: maps must be two or more Files or Blobs"));
+    }
+    fields.maps = opts.maps;
+    fields.mapNames = opts.maps.map((m, i) => (m.name ? m.name : `map-${String(i + 1).padStart(2, "0")}.nii.gz`));
+    if (opts.design !== undefined && opts.design !== null) {
+      fields.design = opts.design;
+      fields.designName = opts.design.name || "design.tsv";
+    }
+    if (opts.mask) {
+      fields.mask = opts.mask;
+      fields.maskName = opts.mask.name || "mask.nii.gz";
+    }
+  }
+  if (opts.background) {
+    fields.background = opts.background;
+    fields.backgroundName = opts.background.name || "background.nii.gz";
+  }
+  return runGroup(fields, opts.workers);
+}
+
+function setMode(mode) {
+  const g = mode === "group";
+  $("mode-run").setAttribute("aria-selected", String(!g));
+  $("mode-group").setAttribute("aria-selected", String(g));
+  $("settings").hidden = g;
+  $("group-settings").hidden = !g;
+}
+
+function wireGroup() {
+  $("mode-run").addEventListener("click", () => setMode("run"));
+  $("mode-group").addEventListener("click", () => setMode("group"));
+  $("g-workers-note").textContent = `Permutations are shared over ${groupWorkers()} worker${groupWorkers() > 1 ? "s" : ""} in this tab.`;
+  const setMaps = (list) => {
+    groupFiles.maps = Array.from(list).sort((a, b) => (a.name < b.name ? -1 : a.name > b.name ? 1 : 0));
+    const box = document.querySelector('.drop[data-role="gmaps"]');
+    box.classList.toggle("chosen", groupFiles.maps.length > 0);
+    const total = groupFiles.maps.reduce((a, f) => a + f.size, 0);
+    $("gmaps-name").textContent = groupFiles.maps.length ? `${groupFiles.maps.length} maps (${formatBytes(total)})` : "none chosen";
+  };
+  const setDesign = (f) => {
+    groupFiles.design = f;
+    document.querySelector('.drop[data-role="gdesign"]').classList.toggle("chosen", !!f);
+    $("gdesign-name").textContent = f ? `${f.name} (${formatBytes(f.size)})` : "none chosen";
+  };
+  $("gmaps-file").addEventListener("change", (e) => setMaps(e.target.files));
+  const setBackground = (f) => {
+    groupFiles.background = f;
+    document.querySelector('.drop[data-role="gbg"]').classList.toggle("chosen", !!f);
+    $("gbg-name").textContent = f ? `${f.name} (${formatBytes(f.size)})` : "none chosen";
+  };
+  $("gdesign-file").addEventListener("change", (e) => setDesign(e.target.files[0] || null));
+  $("gbg-file").addEventListener("change", (e) => setBackground(e.target.files[0] || null));
+  for (const [role, set] of [["gmaps", (fl) => setMaps(fl)], ["gdesign", (fl) => setDesign(fl[0] || null)], ["gbg", (fl) => setBackground(fl[0] || null)]]) {
+    const box = document.querySelector(`.drop[data-role="${role}"]`);
+    box.addEventListener("dragover", (e) => {
+      e.preventDefault();
+      box.classList.add("over");
+    });
+    box.addEventListener("dragleave", () => box.classList.remove("over"));
+    box.addEventListener("drop", (e) => {
+      e.preventDefault();
+      box.classList.remove("over");
+      if (e.dataTransfer.files.length) set(e.dataTransfer.files);
+    });
+  }
+  $("group-settings").addEventListener("submit", (e) => {
+    e.preventDefault();
+    if (groupFiles.maps.length < 2) {
+      showError("Choose two or more subjects' effect maps first.");
+      return;
+    }
+    group({ ...groupSettingsFromForm(), maps: groupFiles.maps, design: groupFiles.design || undefined, background: groupFiles.background || undefined }).catch(() => {});
+  });
+  $("g-demo").addEventListener("click", () => {
+    group({ ...groupSettingsFromForm(), demo: true, background: groupFiles.background || undefined }).catch(() => {});
+  });
 }
 
 // ---- page state -----------------------------------------------------------
@@ -171,7 +391,9 @@ function setBusy(on) {
   busy = on;
   $("run").disabled = on || !isReady;
   $("demo").disabled = on || !isReady;
-  $("rethreshold").disabled = on || !result;
+  $("g-run").disabled = on || !isReady;
+  $("g-demo").disabled = on || !isReady;
+  $("rethreshold").disabled = on || !result || result.mode === "group";
   $("progress").hidden = !on;
   if (on) {
     $("progress-fill").style.width = "0%";
@@ -200,6 +422,7 @@ function settingsFromForm() {
     noise: $("noise").value,
     tr: num("tr"),
     realign: $("realign").checked,
+    nullCheck: $("null-check").checked,
   };
 }
 
@@ -221,7 +444,11 @@ async function run(kind, fields) {
       dims: msg.dims, voxelMM: msg.voxelMM, affine: msg.affine,
       maps: msg.maps, mask: msg.mask, design: msg.design, truth: msg.truth || null,
       hist: msg.hist, motion: msg.motion || null, files: msg.files || [],
+      mode: "run", nullCheck: msg.nullCheck || null, nullHist: null,
     };
+    // The settings the null check was made with, to say so after a rethreshold.
+    const f0 = result.summary.contrasts[0];
+    result.nullCheckMade = fields.nullCheck && f0 ? { correction: f0.correction, alpha: f0.alpha } : null;
     series = null;
     revokeExports();
     view = { contrast: 0, cursor: startCursor(), selected: -1, geom: null };
@@ -261,6 +488,7 @@ async function rethreshold(fields) {
     const msg = await request(Kind.rethreshold, fields, onProgress);
     result.summary = JSON.parse(msg.summary);
     result.hist = msg.hist;
+    result.nullCheck = msg.nullCheck || null;
     for (const m of msg.maps) {
       const i = result.maps.findIndex((x) => x.contrast === m.contrast && x.kind === m.kind);
       if (i >= 0) result.maps[i] = m;
@@ -373,13 +601,21 @@ function drawAll(partial = false) {
     },
   });
   drawHistogram();
+  drawNull();
   if (partial) return;
+  const group = result.mode === "group";
+  $("series-box").hidden = group;
+  $("hrf").hidden = group;
+  // Files the worker encodes come from its last fit; a group result offers
+  // its summary and pictures.
+  for (const el of document.querySelectorAll(".run-only")) el.hidden = group;
+  for (const el of document.querySelectorAll(".group-only")) el.hidden = !group;
   if (result.design) {
     const dc = $("design");
-    designView.render(dc, result.design, { dpr: sizeCanvas(dc) });
+    designView.render(dc, result.design, { dpr: sizeCanvas(dc), rowLabel: group ? "map" : "scan" });
   }
-  drawSeries();
-  if (hrf) {
+  if (!group) drawSeries();
+  if (hrf && !group) {
     const hc = $("hrf");
     hrfView.render(hc, hrf, { dpr: sizeCanvas(hc) });
   }
@@ -396,6 +632,43 @@ function drawHistogram() {
   const c = $("histogram");
   const dpr = sizeCanvas(c);
   if (h) histView.render(c, h, { dpr, log: $("hist-log").checked });
+}
+
+function drawNull() {
+  const h = (result.nullHist || []).find((x) => x.contrast === view.contrast);
+  $("null-box").hidden = !h;
+  if (!h) return;
+  const c = $("nulldist");
+  const con = result.summary.contrasts[view.contrast];
+  nullView.render(c, h, { dpr: sizeCanvas(c), alpha: con ? con.alpha : null });
+}
+
+// showNullCheck shows the null check in words, from the worker's sentence:
+// highlighted when its warning applies, and a note when the settings on
+// screen are not those it was made with.
+function showNullCheck() {
+  const el = $("nullcheck");
+  const nc = result.nullCheck;
+  el.classList.remove("alert", "stale");
+  if (nc) {
+    const text = nc.sentence + ".";
+    el.textContent = (result.mode === "group" ? "Null check (relabellings of the first contrast): " : "Null check: ") + text;
+    if (nc.warning) {
+      const w = document.createElement("strong");
+      w.textContent = "Warning \u2014 " + nc.warning + ".";
+      el.appendChild(document.createElement("br"));
+      el.appendChild(w);
+    }
+    if (nc.warning) el.classList.add("alert");
+    el.hidden = false;
+  } else if (result.nullCheckMade && result.summary.null_check === null) {
+    const m = result.nullCheckMade;
+    el.textContent = `Null check: it was made with ${m.correction} at alpha ${m.alpha}, not with the settings shown; fit again to check these settings.`;
+    el.classList.add("stale");
+    el.hidden = false;
+  } else {
+    el.hidden = true;
+  }
 }
 
 function drawSeries() {
@@ -423,7 +696,7 @@ function stopSeries() {
 
 function requestSeries() {
   stopSeries();
-  if (!result || busy) return;
+  if (!result || busy || result.mode === "group") return;
   const [i, j, k] = view.cursor;
   if (series && series.ijk[0] === i && series.ijk[1] === j && series.ijk[2] === k) return;
   const idx = i + result.dims[0] * (j + result.dims[1] * k);
@@ -484,13 +757,14 @@ async function exportFile(key) {
   let blob, name;
   if (key.startsWith("png:")) {
     const id = key.slice(4);
-    if (!["slices", "series", "histogram", "design"].includes(id)) throw new Error(`unknown picture ${id}`);
+    if (!["slices", "series", "histogram", "design", "nulldist"].includes(id)) throw new Error(`unknown picture ${id}`);
     blob = await canvasBlob(id);
-    name = (id === "series" ? "timeseries" : id) + ".png";
+    name = ({ series: "timeseries", nulldist: "null-distribution" }[id] || id) + ".png";
   } else if (key === "summary") {
     blob = new Blob([JSON.stringify(result.summary, null, 2) + "\n"], { type: "application/json" });
     name = "summary.json";
   } else {
+    if (result.mode === "group") throw new Error(`${key}: not available for a group result; save summary.json or a picture`);
     const fields = { what: key, index: -1 };
     if (key.startsWith("map:")) {
       const f = result.files.find((x) => x.file === key.slice(4));
@@ -542,7 +816,8 @@ function describe(s, con) {
   if (s.fwhm_mm) parts.push(`smoothness ${s.fwhm_mm.map((v) => v.toFixed(1)).join(" \u00d7 ")} mm`);
   if (con) {
     parts.push(`${con.correction} at ${con.alpha}`);
-    parts.push(con.z_threshold === null ? "no voxel can pass" : `z \u2265 ${con.z_threshold.toFixed(2)}`);
+    parts.push(con.z_threshold !== null ? `z \u2265 ${con.z_threshold.toFixed(2)}`
+      : con.stat_threshold !== null ? `threshold ${con.stat_threshold.toFixed(2)}` : "no voxel can pass");
     parts.push(`${con.surviving_voxels} surviving voxels`);
   }
   return parts.join("  \u00b7  ");
@@ -565,13 +840,14 @@ async function showResult(partial = false) {
   pickEl.value = String(view.contrast);
   // The inference fields show the settings of the result on screen.
   const shown = s.contrasts[view.contrast];
-  if (shown) {
+  if (shown && result.mode !== "group") {
     $("correct").value = shown.correction;
     $("alpha").value = String(shown.alpha);
     if (shown.cluster_p) $("cluster-p").value = String(shown.cluster_p);
   }
   $("facts").textContent = describe(s, s.contrasts[view.contrast]);
   $("outline-note").hidden = !result.truth;
+  showNullCheck();
   fillExportMaps();
   const warnings = s.warnings || [];
   $("warnings").textContent = "";
@@ -701,7 +977,7 @@ function analyze(opts) {
     correct: opts.correct, alpha: opts.alpha, clusterP: opts.clusterP ?? opts.cluster_p,
     smooth: opts.smooth, highpass: opts.highpass, noise: opts.noise, tr: opts.tr,
     hrfDerivs: !!(opts.hrfDerivs ?? opts.hrf_derivs), modulate: opts.modulate,
-    realign: !!opts.realign,
+    realign: !!opts.realign, nullCheck: !!(opts.nullCheck ?? opts.null_check),
   };
   // inflate: "wasm" makes the worker inflate a gzip run with the Go decoder
   // instead of the browser's DecompressionStream (for benchmarks).
@@ -720,6 +996,7 @@ function analyze(opts) {
 window.winnow = Object.freeze({
   ready,
   analyze,
+  group,
   // demo runs the built-in synthetic scenario; opts as analyze without files and contrasts.
   demo: (opts = {}) => run(Kind.demo, { ...opts, seed: opts.seed ?? 1 }),
   // rethreshold re-infers the shown result: {correct, alpha, clusterP}; it
@@ -752,5 +1029,6 @@ function waitSeries() {
 }
 
 wireInputs();
+wireGroup();
 startWorker();
 ready.then(() => setBusy(false), () => {});

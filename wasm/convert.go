@@ -11,6 +11,8 @@ import (
 	"winnow/core/analysis"
 	"winnow/core/glm"
 	"winnow/core/infer"
+	"winnow/core/nullcheck"
+	"winnow/core/report"
 )
 
 // Settings are the analysis settings of an analyze, demo or rethreshold
@@ -29,7 +31,12 @@ type Settings struct {
 	Modulate  []string
 	Seed      uint64 // demo only
 	Realign   bool
+	NullCheck bool // the page's switch: NullCheckDesigns chance designs
 }
+
+// NullCheckDesigns is the number of chance designs the page's null-check
+// switch asks for.
+const NullCheckDesigns = 40
 
 // method decodes the correction name.
 func (s Settings) method() (infer.Method, error) {
@@ -70,6 +77,59 @@ func (s Settings) FitOptions() (analysis.FitOptions, error) {
 		HRFDerivs:   s.HRFDerivs,
 		Modulate:    s.Modulate,
 		Realign:     s.Realign,
+		NullCheck:   nullCheckDesigns(s.NullCheck),
+	}, nil
+}
+
+func nullCheckDesigns(on bool) int {
+	if on {
+		return NullCheckDesigns
+	}
+	return 0
+}
+
+// NullCheckText is what the page shows of a summary's null check: the
+// sentence for people and, when the interval's lower bound is above alpha,
+// the warning; both "" when the summary holds no null check.
+func NullCheckText(nc *report.NullCheck, alpha float64) (sentence, warning string) {
+	if nc == nil {
+		return "", ""
+	}
+	return nullcheck.Sentence(*nc), nullcheck.Warning(*nc, alpha)
+}
+
+// GroupSettings are the settings of a group request, decoded from the
+// message. Zero means the documented default.
+type GroupSettings struct {
+	Contrasts []string
+	Correct   string // "": fwe-perm
+	Perms     int
+	Seed      *uint64
+	Alpha     float64
+	ClusterP  float64
+	Shard     int // 1-based; with Shards > 0
+	Shards    int
+}
+
+// GroupOptions converts the settings; one worker per shard (the page runs
+// shards in separate Web Workers).
+func (s GroupSettings) GroupOptions() (analysis.GroupOptions, error) {
+	var m infer.Method
+	if s.Correct != "" {
+		var err error
+		if m, err = infer.ParseMethod(s.Correct); err != nil {
+			return analysis.GroupOptions{}, &analysis.InputError{File: "correct", Err: err}
+		}
+	}
+	if s.Perms < 0 {
+		return analysis.GroupOptions{}, &analysis.InputError{File: "perms", Err: fmt.Errorf("%d, want a positive number of relabellings", s.Perms)}
+	}
+	if s.Shards < 0 || s.Shards > 0 && (s.Shard < 1 || s.Shard > s.Shards) {
+		return analysis.GroupOptions{}, &analysis.InputError{File: "shard", Err: fmt.Errorf("%d of %d, want K of N with 1 <= K <= N", s.Shard, s.Shards)}
+	}
+	return analysis.GroupOptions{
+		Contrasts: s.Contrasts, Correct: m, Perms: s.Perms, Seed: s.Seed,
+		Alpha: s.Alpha, ClusterP: s.ClusterP, Workers: 1, Shard: s.Shard, Shards: s.Shards,
 	}, nil
 }
 

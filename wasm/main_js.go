@@ -209,6 +209,32 @@ func handle(msg js.Value) {
 			}
 			post(map[string]any{"v": ProtocolVersion, "id": id, "kind": KindResult, "bytes": n, "ms": ms}, nil)
 		})
+	case KindGroup, KindGroupMerge:
+		gs := decodeGroupSettings(msg)
+		src, err := groupSource(msg)
+		if err != nil {
+			postError(id, err)
+			return
+		}
+		var shards [][]byte
+		if kind == KindGroupMerge {
+			v := msg.Get("shards")
+			if !present(v) || !js.Global().Get("Array").Call("isArray", v).Bool() || v.Length() == 0 {
+				postError(id, errors.New("shards: want an array of Uint8Array, one per shard"))
+				return
+			}
+			for i := 0; i < v.Length(); i++ {
+				e := v.Index(i)
+				if !e.InstanceOf(js.Global().Get("Uint8Array")) {
+					postError(id, fmt.Errorf("shards[%d]: want a Uint8Array", i))
+					return
+				}
+				b := make([]byte, e.Length())
+				js.CopyBytesToGo(b, e)
+				shards = append(shards, b)
+			}
+		}
+		runGroup(id, kind, gs, src, shards, backgroundOf(msg))
 	case KindCancel:
 		target := intField(msg, "target")
 		mu.Lock()
@@ -394,6 +420,7 @@ func postResult(id int, r *analysis.FitResult, partial bool, truth []float32, ti
 	msg := map[string]any{
 		"v": ProtocolVersion, "id": id, "kind": KindResult,
 		"summary": string(summary), "maps": maps, "partial": partial, "hist": histMsgs,
+		"nullCheck": nullCheckMsg(r.Summary),
 	}
 	if !partial {
 		g := r.Grid
@@ -546,6 +573,7 @@ func decodeSettings(msg js.Value) Settings {
 		Modulate:  stringsField(msg, "modulate"),
 		Seed:      uint64(max(0, numberField(msg, "seed"))),
 		Realign:   msg.Get("realign").Truthy(),
+		NullCheck: msg.Get("nullCheck").Truthy(),
 	}
 	if h := msg.Get("highpass"); h.Type() == js.TypeNumber {
 		v := h.Float()

@@ -21,7 +21,8 @@ package main
 //	             alpha: number, clusterP: number, smooth: number (FWHM mm),
 //	             highpass: number (s; 0 off), noise: "ar1" | "ols",
 //	             tr?: number (s; 0 or absent: from the header),
-//	             hrfDerivs?: boolean, modulate?: string[], realign?: boolean.
+//	             hrfDerivs?: boolean, modulate?: string[], realign?: boolean,
+//	             nullCheck?: boolean (40 chance designs).
 //	             inflate?: "stream" | "wasm" (how a gzip run is inflated: the
 //	             browser's DecompressionStream, the default, or the Go decoder).
 //	             An absent or zero number means the documented default.
@@ -39,6 +40,19 @@ package main
 //	             one file of the last result, encoded by the Go pipeline.
 //	gunzip       blob: Blob, how: "stream" | "wasm": inflate a gzip Blob to
 //	             the end and report the time (a benchmark hook).
+//	group        maps: Blob[], mapNames: string[] (one 3D effect map per
+//	             subject), design?: Blob | string, designName?, mask?: Blob,
+//	             maskName?, background?: Blob, backgroundName? (a 3D image on
+//	             the maps' grid to draw over; else the maps' mean), or demo:
+//	             true (the worker generates the synthetic
+//	             group demo); contrasts: string[] (may be empty for a
+//	             one-sample test), correct (fwe-perm, cluster-perm, tfce,
+//	             none, bonferroni, holm, fdr-bh, fdr-by, fwe-rft), perms,
+//	             seed, alpha, clusterP; shard, shards (K of N, 1-based:
+//	             only that slice of the relabellings; the reply is a shard).
+//	groupMerge   the fields of group (the maps are read again for the mean
+//	             background) and shards: Uint8Array[] (every shard's
+//	             bytes): the result one unsharded run gives.
 //	cancel       target: the id of a running request. It has no reply of its
 //	             own: the target ends with an error "canceled".
 //
@@ -73,6 +87,17 @@ package main
 //	result of series: series: {ijk, time, observed, fitted: Float64Array, rho}.
 //	result of export: name: string, type: string (MIME), bytes: Uint8Array.
 //	result of gunzip: bytes: number (decompressed), ms: number.
+//	result of group (a shard): shard: Uint8Array (for groupMerge).
+//	result of group or groupMerge: mode: "group", and the fields of a fit's
+//	             result (maps: the mean of the input maps as kind "mean",
+//	             z, stat and thresholded per contrast; no truth, motion,
+//	             files), plus nullHist: [{contrast, label, edges, counts:
+//	             Float64Array, n, threshold: number | null, observed,
+//	             exceed}] (the permutation null of the maximum; absent under
+//	             parametric methods).
+//	nullCheck    (in every full result) {sentence, warning: string} or null:
+//	             the summary's null_check in words and, when its interval's
+//	             lower bound is above alpha, the warning ("" otherwise).
 //	error        message: string, one line, the text of the Go error.
 //
 // Typed arrays in a result are transferred, not copied.
@@ -89,6 +114,8 @@ const (
 	KindSeries      = "series"
 	KindExport      = "export"
 	KindGunzip      = "gunzip"
+	KindGroup       = "group"
+	KindGroupMerge  = "groupMerge"
 	KindReady       = "ready"
 	KindProgress    = "progress"
 	KindResult      = "result"
@@ -99,4 +126,4 @@ const (
 const chunkBytes = 4 << 20
 
 // requestKinds are the kinds a page may send, for the error on an unknown one.
-var requestKinds = []string{KindAnalyze, KindDemo, KindRethreshold, KindSeries, KindExport, KindGunzip, KindCancel}
+var requestKinds = []string{KindAnalyze, KindDemo, KindRethreshold, KindSeries, KindExport, KindGunzip, KindGroup, KindGroupMerge, KindCancel}

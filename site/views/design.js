@@ -4,10 +4,11 @@
 // columns. Pure: render draws from its arguments only.
 //
 // data: {rows, cols, names: string[], data: Float64Array (row-major)}
-// opts: {dpr}
+// opts: {dpr, rowLabel: what a row is ("scan" by default; "map" for a group)}
 
 export function render(canvas, data, opts = {}) {
   const dpr = opts.dpr || 1;
+  const rl = opts.rowLabel || "scan";
   const ctx = canvas.getContext("2d");
   const W = canvas.width, H = canvas.height;
   ctx.clearRect(0, 0, W, H);
@@ -16,7 +17,7 @@ export function render(canvas, data, opts = {}) {
   ctx.font = `${11 * dpr}px system-ui, sans-serif`;
   const longest = Math.max(...names.map((n) => ctx.measureText(n).width));
   const top = Math.min(160 * dpr, longest * 0.72 + 14 * dpr);
-  const left = ctx.measureText(`scan ${rows}`).width + 10 * dpr, right = 8 * dpr, bottom = 4 * dpr;
+  const left = ctx.measureText(`${rl} ${rows}`).width + 10 * dpr, right = 8 * dpr, bottom = 4 * dpr;
   const colW = Math.max(1, Math.min(36 * dpr, (W - left - right) / cols));
   const imgW = colW * cols, imgH = H - top - bottom;
 
@@ -58,7 +59,7 @@ export function render(canvas, data, opts = {}) {
   }
   ctx.textAlign = "right";
   ctx.textBaseline = "top";
-  ctx.fillText("scan 1", left - 5 * dpr, top);
+  ctx.fillText(`${rl} 1`, left - 5 * dpr, top);
   ctx.textBaseline = "bottom";
-  ctx.fillText(`scan ${rows}`, left - 5 * dpr, top + imgH);
+  ctx.fillText(`${rl} ${rows}`, left - 5 * dpr, top + imgH);
 }
