@@ -799,7 +799,7 @@ func (s *session) group(ctx context.Context) error {
 		runsNote = " One run only (long)."
 	}
 	s.setFigure("group_perm_seconds", secs, "wall", fmt.Sprintf(
-		"core/group in this process (the CLI has no group command yet): Model.Prepare + Problem.Run of a one-sample %s plan, MaxTFCE, %d workers, on %d maps of %d voxels (smooth noise plus a shared effect); wall seconds, CPU %.1f s (all workers); largest null TFCE maximum %.4g.%s%s",
+		"core/group in this process (the permutation engine alone, no file I/O): Model.Prepare + Problem.Run of a one-sample %s plan, MaxTFCE, %d workers, on %d maps of %d voxels (smooth noise plus a shared effect); wall seconds, CPU %.1f s (all workers); largest null TFCE maximum %.4g.%s%s",
 		plan.Scheme, workers, n, nv, cm, maxT, scaleNote, runsNote))
 	return nil
 }
