@@ -114,11 +114,8 @@ func (o *FitOptions) defaults() {
 }
 
 func (o *FitOptions) check() error {
-	if !(o.Alpha > 0 && o.Alpha < 1) {
-		return inputErrf("--alpha", "%g is not a probability; want 0 < alpha < 1", o.Alpha)
-	}
-	if !(o.ClusterP > 0 && o.ClusterP < 1) {
-		return inputErrf("--cluster-p", "%g is not a probability; want 0 < p < 1", o.ClusterP)
+	if err := checkLevels(o.Alpha, o.ClusterP); err != nil {
+		return err
 	}
 	if o.SmoothMM < 0 || math.IsNaN(o.SmoothMM) || o.SmoothMM > 50 {
 		return inputErrf("--smooth", "%g mm; want 0 (none) to 50 mm", o.SmoothMM)
@@ -134,6 +131,17 @@ func (o *FitOptions) check() error {
 	}
 	if len(o.Contrasts) == 0 {
 		return inputErrf("--contrast", "no contrast given; want at least one NAME=EXPR")
+	}
+	return nil
+}
+
+// checkLevels checks the error level and the cluster-forming p.
+func checkLevels(alpha, clusterP float64) error {
+	if !(alpha > 0 && alpha < 1) {
+		return inputErrf("--alpha", "%g is not a probability; want 0 < alpha < 1", alpha)
+	}
+	if !(clusterP > 0 && clusterP < 1) {
+		return inputErrf("--cluster-p", "%g is not a probability; want 0 < p < 1", clusterP)
 	}
 	return nil
 }

@@ -149,11 +149,8 @@ func (o *GroupOptions) defaults() {
 }
 
 func (o *GroupOptions) check() error {
-	if !(o.Alpha > 0 && o.Alpha < 1) {
-		return inputErrf("--alpha", "%g is not a probability; want 0 < alpha < 1", o.Alpha)
-	}
-	if !(o.ClusterP > 0 && o.ClusterP < 1) {
-		return inputErrf("--cluster-p", "%g is not a probability; want 0 < p < 1", o.ClusterP)
+	if err := checkLevels(o.Alpha, o.ClusterP); err != nil {
+		return err
 	}
 	if o.Perms < 1 || o.Perms > group.MaxPerms {
 		return inputErrf("--perms", "%d; want 1 to %d", o.Perms, group.MaxPerms)

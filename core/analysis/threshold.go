@@ -155,11 +155,8 @@ func (r *FitResult) Rethreshold(method infer.Method, alpha, clusterP float64) er
 	if !method.FirstLevel() {
 		return inputErrf("--correct", "%q is for group analyses only; want one of %s", method, strings.Join(firstLevelMethods(), ", "))
 	}
-	if !(alpha > 0 && alpha < 1) {
-		return inputErrf("--alpha", "%g is not a probability; want 0 < alpha < 1", alpha)
-	}
-	if !(clusterP > 0 && clusterP < 1) {
-		return inputErrf("--cluster-p", "%g is not a probability; want 0 < p < 1", clusterP)
+	if err := checkLevels(alpha, clusterP); err != nil {
+		return err
 	}
 	warn := append([]string(nil), r.baseWarnings...)
 	warn = append(warn, infer.Warnings(method, clusterP, r.fwhmVox)...)

@@ -66,45 +66,25 @@ func runGroup(args []string, stdout, stderr io.Writer) error {
 		}
 		opt.Shard, opt.Shards = k, n
 	}
-	var closers []io.Closer
-	defer func() {
-		for _, c := range closers {
-			c.Close()
-		}
-	}()
-	open := func(name string) (*analysis.Input, error) {
-		f, err := os.Open(name)
-		if err != nil {
-			return nil, &analysis.InputError{File: name, Err: errors.Unwrap(err)}
-		}
-		closers = append(closers, f)
-		size := int64(-1)
-		if st, err := f.Stat(); err == nil {
-			size = st.Size()
-		}
-		return &analysis.Input{Name: name, R: f, Size: size}, nil
-	}
+	var files inputFiles
+	defer files.close()
 	var in analysis.GroupInputs
 	for _, name := range strings.Split(*mapsFlag, ",") {
 		name = strings.TrimSpace(name)
 		if name == "" {
 			return &analysis.InputError{File: "--maps", Err: errors.New("an empty file name in the list; want F,F,...")}
 		}
-		f, err := open(name)
+		f, err := files.open(name)
 		if err != nil {
 			return err
 		}
 		in.Maps = append(in.Maps, *f)
 	}
-	if *designf != "" {
-		if in.Design, err = open(*designf); err != nil {
-			return err
-		}
+	if in.Design, err = files.optional(*designf); err != nil {
+		return err
 	}
-	if *maskf != "" {
-		if in.Mask, err = open(*maskf); err != nil {
-			return err
-		}
+	if in.Mask, err = files.optional(*maskf); err != nil {
+		return err
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()

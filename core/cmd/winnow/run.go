@@ -110,6 +110,37 @@ func parse(fs *flag.FlagSet, args []string) error {
 	return nil
 }
 
+// inputFiles opens the command's input files and closes them at the end.
+type inputFiles struct{ closers []io.Closer }
+
+// open opens a file as a pipeline input; a missing file is an input error.
+func (fs *inputFiles) open(name string) (*analysis.Input, error) {
+	f, err := os.Open(name)
+	if err != nil {
+		return nil, &analysis.InputError{File: name, Err: errors.Unwrap(err)}
+	}
+	fs.closers = append(fs.closers, f)
+	size := int64(-1)
+	if st, err := f.Stat(); err == nil {
+		size = st.Size()
+	}
+	return &analysis.Input{Name: name, R: f, Size: size}, nil
+}
+
+// optional opens name, or returns nil when no name was given.
+func (fs *inputFiles) optional(name string) (*analysis.Input, error) {
+	if name == "" {
+		return nil, nil
+	}
+	return fs.open(name)
+}
+
+func (fs *inputFiles) close() {
+	for _, c := range fs.closers {
+		c.Close()
+	}
+}
+
 // listFlag collects a repeatable string flag.
 type listFlag []string
 
@@ -272,44 +303,24 @@ func runFit(args []string, stdout, stderr io.Writer) error {
 	}
 	opt.Correct = m
 
+	var files inputFiles
+	defer files.close()
 	var in analysis.FitInputs
-	var closers []io.Closer
-	defer func() {
-		for _, c := range closers {
-			c.Close()
-		}
-	}()
-	open := func(name string) (*analysis.Input, error) {
-		f, err := os.Open(name)
-		if err != nil {
-			return nil, &analysis.InputError{File: name, Err: errors.Unwrap(err)}
-		}
-		closers = append(closers, f)
-		size := int64(-1)
-		if st, err := f.Stat(); err == nil {
-			size = st.Size()
-		}
-		return &analysis.Input{Name: name, R: f, Size: size}, nil
-	}
-	b, err := open(*bold)
+	b, err := files.open(*bold)
 	if err != nil {
 		return err
 	}
 	in.Bold = *b
-	e, err := open(*evf)
+	e, err := files.open(*evf)
 	if err != nil {
 		return err
 	}
 	in.Events = *e
-	if *conf != "" {
-		if in.Confounds, err = open(*conf); err != nil {
-			return err
-		}
+	if in.Confounds, err = files.optional(*conf); err != nil {
+		return err
 	}
-	if *maskf != "" {
-		if in.Mask, err = open(*maskf); err != nil {
-			return err
-		}
+	if in.Mask, err = files.optional(*maskf); err != nil {
+		return err
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt)
 	defer stop()
