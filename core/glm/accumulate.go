@@ -9,24 +9,31 @@ import (
 
 // batch is the number of volumes folded into the accumulators at once. Each accumulator
 // slab is then read and written once per batch instead of once per volume, which cuts the
-// memory traffic of the hot loop by this factor.
-const batch = 4
+// memory traffic of the hot loop by this factor. With the previous volume the kernels hold
+// batch+1 values per voxel and batch+1 design values: 16 float64 registers, the number Go's
+// WebAssembly backend has (more spills to memory).
+const batch = 7
 
-// chunk is the number of voxels folded per block in flush (5 pending slices of 2048 float64:
-// 80 KiB, within L2).
-const chunk = 2048
+// stride is the number of values per voxel a kernel reads: the last folded volume and the
+// batch pending ones. flush interleaves them per chunk of voxels (win[v*stride + b]) so
+// that a kernel reads one voxel's values from one base address.
+const stride = batch + 1
+
+// chunk is the number of voxels folded per block in flush (512 voxels of 8 values: 32 KiB,
+// within L1/L2 while every regressor's slab streams by).
+const chunk = 512
 
 // Accumulator holds the single-pass sufficient statistics of a voxel-wise GLM (methods notes
 // §d.4, §d.5, §f.2). Every per-voxel quantity is a contiguous []float64 slab over the in-mask
 // voxels (structure of arrays); no array of volumes x voxels is ever formed.
 //
 // Memory, in bytes per in-mask voxel, with p design columns: 8·(3p + 4) for Syy, Sy, Lyy, the
-// first sample, Sxy, Axy and Bxy; 8·(batch + 1) = 40 for the pending volumes; at most 3·3·8 = 72
+// first sample, Sxy, Axy and Bxy; 8·(batch + 1) = 64 for the pending volumes; at most 3·3·8 = 72
 // for the neighbour products S0, S+, S−; and at most 4·12 = 48 for the run and segment lists
 // (in a brain mask far less: one entry per stretch of consecutive voxels). That is at most
-// 24p + 192 bytes per voxel (672 for p = 20; 200 000 voxels: 134 MB). AccumulatorBytes returns
-// the bound for a caller that checks limits before allocating. Fit transiently needs a few
-// more slabs (β: 8p per voxel, kept in the Fit; ρ, σ², mean: 8 each).
+// 24p + 216 bytes per voxel (696 for p = 20; 200 000 voxels: 139 MB), plus 32 KiB for the
+// interleaved chunk of flush. AccumulatorBytes returns the bound for a caller that checks
+// limits before allocating. Fit transiently needs a few more slabs (β: 8p per voxel, kept in the Fit; ρ, σ², mean: 8 each).
 type Accumulator struct {
 	n, p   int
 	x      []float64 // n x p, row-major copy of the design
@@ -38,7 +45,9 @@ type Accumulator struct {
 
 	// Per voxel, over the series offset by its first sample y1 (methods notes §d.5).
 	syy, sy, lyy, y1 []float64
-	sxy, axy, bxy    [][]float64 // [regressor][voxel]
+	// sxy[j][3v], sxy[j][3v+1], sxy[j][3v+2]: Sxy, Axy and Bxy of regressor j at voxel v,
+	// interleaved so that the fold reads and writes them from one address.
+	sxy [][]float64
 
 	// Neighbour pairs along +x, +y, +z (compact indices, both in the list) and their
 	// products S0 = Σ y_a,t y_b,t, S+ = Σ_{t≥2} y_a,t y_b,t−1, S− = Σ_{t≥2} y_a,t−1 y_b,t.
@@ -46,17 +55,19 @@ type Accumulator struct {
 	s0, sp, sm [3][]float64
 	runs       []segment // stretches of consecutive voxels (grid start, compact start, length)
 
-	// ybuf[0] is the last folded volume (offset values), ybuf[1..pending] the pending ones;
-	// xrow[b] is the design row of ybuf[b].
-	ybuf    [batch + 1][]float64
-	xrow    [batch + 1][]float64
+	// ybuf[0] is the last folded volume (offset values), ybuf[1..pending] the pending ones,
+	// each contiguous over the voxels; win is flush's interleaved copy of one chunk;
+	// xrow[j*stride + b] is design column j at the volume of ybuf[b].
+	ybuf    [stride][]float64
+	win     []float64
+	xrow    []float64
 	pending int
 }
 
 // AccumulatorBytes is an upper bound on the memory an Accumulator of p design columns over
 // the given number of in-mask voxels allocates.
 func AccumulatorBytes(p, voxels int) int64 {
-	return int64(voxels) * int64(24*p+192)
+	return int64(voxels)*int64(24*p+216) + chunk*stride*8
 }
 
 // NewAccumulator prepares the sums for design x (volumes x columns) over the in-mask voxels
@@ -94,22 +105,21 @@ func NewAccumulator(x *mat.Dense, dims [3]int, voxels []int32) *Accumulator {
 		}
 	}
 	slab := make([]float64, nv*(4+3*p))
-	next := func() []float64 {
-		s := slab[:nv:nv]
-		slab = slab[nv:]
+	next := func(k int) []float64 {
+		s := slab[: k*nv : k*nv]
+		slab = slab[k*nv:]
 		return s
 	}
-	a.syy, a.sy, a.lyy, a.y1 = next(), next(), next(), next()
+	a.syy, a.sy, a.lyy, a.y1 = next(1), next(1), next(1), next(1)
 	a.sxy = make([][]float64, p)
-	a.axy = make([][]float64, p)
-	a.bxy = make([][]float64, p)
 	for j := 0; j < p; j++ {
-		a.sxy[j], a.axy[j], a.bxy[j] = next(), next(), next()
+		a.sxy[j] = next(3)
 	}
 	for b := range a.ybuf {
 		a.ybuf[b] = make([]float64, nv)
-		a.xrow[b] = make([]float64, p)
 	}
+	a.win = make([]float64, chunk*stride)
+	a.xrow = make([]float64, p*stride)
 	a.pairs()
 	return a
 }
@@ -181,7 +191,7 @@ func (a *Accumulator) pairList(ax int) (pa, pb []int32) {
 
 // Bytes is the memory held by the accumulator's slabs.
 func (a *Accumulator) Bytes() int64 {
-	b := int64(a.nv) * 8 * int64(4+3*a.p+batch+1)
+	b := int64(a.nv)*8*int64(4+3*a.p+stride) + int64(len(a.win))*8
 	for ax := 0; ax < 3; ax++ {
 		b += int64(len(a.s0[ax]))*3*8 + int64(len(a.segs[ax]))*12
 	}
@@ -198,7 +208,7 @@ func (a *Accumulator) AddVolume(vol []float32) {
 	a.checkLen(len(vol))
 	if b := a.slot(); b >= 0 {
 		gather(a.ybuf[b], vol, a.runs, a.y1, b == 0)
-		a.commit()
+		a.commit(b)
 	}
 }
 
@@ -207,7 +217,7 @@ func (a *Accumulator) AddVolume64(vol []float64) {
 	a.checkLen(len(vol))
 	if b := a.slot(); b >= 0 {
 		gather(a.ybuf[b], vol, a.runs, a.y1, b == 0)
-		a.commit()
+		a.commit(b)
 	}
 }
 
@@ -217,7 +227,7 @@ func (a *Accumulator) checkLen(n int) {
 	}
 }
 
-// slot returns the ybuf index the next volume goes to, or −1 when the design has no row for
+// slot returns the ybuf slot the next volume goes to, or −1 when the design has no row for
 // it (Fit reports the mismatch). Index 0 means the first volume: it sets y1.
 func (a *Accumulator) slot() int {
 	if a.added >= a.n {
@@ -230,17 +240,23 @@ func (a *Accumulator) slot() int {
 	return a.pending + 1
 }
 
-func (a *Accumulator) commit() {
+func (a *Accumulator) commit(b int) {
 	t := a.added
 	a.added++
+	a.setRow(b, t)
 	if t == 0 {
-		copy(a.xrow[0], a.x[:a.p])
 		return
 	}
 	a.pending++
-	copy(a.xrow[a.pending], a.x[t*a.p:(t+1)*a.p])
 	if a.pending == batch {
 		a.flush()
+	}
+}
+
+// setRow stores design row t as the coefficients of slot b.
+func (a *Accumulator) setRow(b, t int) {
+	for j, v := range a.x[t*a.p : (t+1)*a.p] {
+		a.xrow[j*stride+b] = v
 	}
 }
 
@@ -266,6 +282,9 @@ func gather[T float32 | float64](dst []float64, vol []T, runs []segment, y1 []fl
 	}
 }
 
+// last is voxel v's last folded value (offset by its first sample).
+func (a *Accumulator) last(v int) float64 { return a.ybuf[0][v] }
+
 // flush folds the pending volumes into the sums. Missing batch slots are zero-filled (zero
 // data and zero design rows add nothing to any sum), so one kernel serves every count.
 func (a *Accumulator) flush() {
@@ -273,73 +292,103 @@ func (a *Accumulator) flush() {
 	if k == 0 {
 		return
 	}
-	for b := k + 1; b <= batch; b++ {
-		clear(a.ybuf[b])
-		clear(a.xrow[b])
-	}
 	nv := a.nv
-	// Voxel chunks keep the pending values in cache while every regressor's slabs stream by.
+	for b := k + 1; b < stride; b++ {
+		clear(a.ybuf[b])
+		for j := 0; j < a.p; j++ {
+			a.xrow[j*stride+b] = 0
+		}
+	}
+	// Voxel chunks: the chunk's values are interleaved into win (in cache) while every
+	// regressor's slabs stream by.
 	for lo := 0; lo < nv; lo += chunk {
 		hi := min(lo+chunk, nv)
-		y0, y1, y2, y3, y4 := a.ybuf[0][lo:hi], a.ybuf[1][lo:hi], a.ybuf[2][lo:hi], a.ybuf[3][lo:hi], a.ybuf[4][lo:hi]
+		y := a.win[:(hi-lo)*stride]
+		interleave(y, &a.ybuf, lo, hi)
 		for j := 0; j < a.p; j++ {
-			foldRegressor(a.sxy[j][lo:hi], a.axy[j][lo:hi], a.bxy[j][lo:hi], y0, y1, y2, y3, y4,
-				a.xrow[0][j], a.xrow[1][j], a.xrow[2][j], a.xrow[3][j], a.xrow[4][j])
+			foldRegressor(a.sxy[j][3*lo:3*hi], y, (*[stride]float64)(a.xrow[j*stride:(j+1)*stride]))
 		}
-		foldSeries(a.syy[lo:hi], a.sy[lo:hi], a.lyy[lo:hi], y0, y1, y2, y3, y4)
+		foldSeries(a.syy[lo:hi], a.sy[lo:hi], a.lyy[lo:hi], y)
 	}
-	y0, y1, y2, y3, y4 := a.ybuf[0][:nv], a.ybuf[1][:nv], a.ybuf[2][:nv], a.ybuf[3][:nv], a.ybuf[4][:nv]
 	for ax := 0; ax < 3; ax++ {
-		foldPairs(a.s0[ax], a.sp[ax], a.sm[ax], a.segs[ax], y0, y1, y2, y3, y4)
+		foldPairs(a.s0[ax], a.sp[ax], a.sm[ax], a.segs[ax], &a.ybuf)
 	}
+	// The last pending volume becomes the previous one of the next batch.
 	a.ybuf[0], a.ybuf[k] = a.ybuf[k], a.ybuf[0]
-	a.xrow[0], a.xrow[k] = a.xrow[k], a.xrow[0]
+	for j := 0; j < a.p; j++ {
+		a.xrow[j*stride] = a.xrow[j*stride+k]
+	}
 	a.pending = 0
 }
 
-// foldRegressor: s += Σ_b x_b y_b, acc += Σ_b x_b y_{b−1}, bcc += Σ_b x_{b−1} y_b, over long
-// contiguous slices (x0 is the design row of y0, the previous volume).
-func foldRegressor(s, acc, bcc, y0, y1, y2, y3, y4 []float64, x0, x1, x2, x3, x4 float64) {
-	n := len(s)
-	acc, bcc = acc[:n], bcc[:n]
-	y0, y1, y2, y3, y4 = y0[:n], y1[:n], y2[:n], y3[:n], y4[:n]
-	for v := range s {
-		a0, a1, a2, a3, a4 := y0[v], y1[v], y2[v], y3[v], y4[v]
-		s[v] += x1*a1 + x2*a2 + x3*a3 + x4*a4
-		acc[v] += x1*a0 + x2*a1 + x3*a2 + x4*a3
-		bcc[v] += x0*a1 + x1*a2 + x2*a3 + x3*a4
+// interleave copies voxels lo..hi−1 of the stride volumes into dst, voxel by voxel.
+func interleave(dst []float64, ybuf *[stride][]float64, lo, hi int) {
+	n := hi - lo
+	y0, y1, y2, y3 := ybuf[0][lo:hi], ybuf[1][lo:hi], ybuf[2][lo:hi], ybuf[3][lo:hi]
+	y4, y5, y6, y7 := ybuf[4][lo:hi], ybuf[5][lo:hi], ybuf[6][lo:hi], ybuf[7][lo:hi]
+	y0, y1, y2, y3, y4, y5, y6, y7 = y0[:n], y1[:n], y2[:n], y3[:n], y4[:n], y5[:n], y6[:n], y7[:n]
+	dst = dst[:n*stride]
+	for v := 0; v < n; v++ {
+		q := (*[stride]float64)(dst[v*stride : v*stride+stride])
+		q[0], q[1], q[2], q[3], q[4], q[5], q[6], q[7] = y0[v], y1[v], y2[v], y3[v], y4[v], y5[v], y6[v], y7[v]
 	}
 }
 
-func foldSeries(syy, sy, lyy, y0, y1, y2, y3, y4 []float64) {
+// foldRegressor adds one batch to one regressor's interleaved sums s (Sxy, Axy, Bxy per
+// voxel): Sxy += Σ_b x_b y_b, Axy += Σ_b x_b y_{b−1}, Bxy += Σ_b x_{b−1} y_b over b = 1..batch,
+// where y holds stride values per voxel (y_0 the previous volume) and x the design values of
+// the same slots. The body is fully unrolled over the batch: one long loop over voxels whose
+// values stay in registers, which Go's WebAssembly output runs at close to native speed.
+func foldRegressor(s, y []float64, x *[stride]float64) {
+	n := len(s) / 3
+	y = y[:n*stride]
+	x0, x1, x2, x3, x4, x5, x6, x7 := x[0], x[1], x[2], x[3], x[4], x[5], x[6], x[7]
+	for v := 0; v < n; v++ {
+		q := (*[stride]float64)(y[v*stride : v*stride+stride])
+		o := (*[3]float64)(s[3*v : 3*v+3])
+		a0, a1, a2, a3, a4, a5, a6, a7 := q[0], q[1], q[2], q[3], q[4], q[5], q[6], q[7]
+		o[0] += x1*a1 + x2*a2 + x3*a3 + x4*a4 + x5*a5 + x6*a6 + x7*a7
+		o[1] += x1*a0 + x2*a1 + x3*a2 + x4*a3 + x5*a4 + x6*a5 + x7*a6
+		o[2] += x0*a1 + x1*a2 + x2*a3 + x3*a4 + x4*a5 + x5*a6 + x6*a7
+	}
+}
+
+// foldSeries adds one batch to Syy, Sy and Lyy.
+func foldSeries(syy, sy, lyy, y []float64) {
 	n := len(syy)
 	sy, lyy = sy[:n], lyy[:n]
-	y0, y1, y2, y3, y4 = y0[:n], y1[:n], y2[:n], y3[:n], y4[:n]
+	y = y[:n*stride]
 	for v := range syy {
-		a0, a1, a2, a3, a4 := y0[v], y1[v], y2[v], y3[v], y4[v]
-		syy[v] += a1*a1 + a2*a2 + a3*a3 + a4*a4
-		sy[v] += a1 + a2 + a3 + a4
-		lyy[v] += a1*a0 + a2*a1 + a3*a2 + a4*a3
+		q := (*[stride]float64)(y[v*stride : v*stride+stride])
+		a0, a1, a2, a3, a4, a5, a6, a7 := q[0], q[1], q[2], q[3], q[4], q[5], q[6], q[7]
+		syy[v] += a1*a1 + a2*a2 + a3*a3 + a4*a4 + a5*a5 + a6*a6 + a7*a7
+		sy[v] += a1 + a2 + a3 + a4 + a5 + a6 + a7
+		lyy[v] += a1*a0 + a2*a1 + a3*a2 + a4*a3 + a5*a4 + a6*a5 + a7*a6
 	}
 }
 
-func foldPairs(s0, sp, sm []float64, segs []segment, y0, y1, y2, y3, y4 []float64) {
+// foldPairs adds one batch to the neighbour products of one axis, segment by segment.
+func foldPairs(s0, sp, sm []float64, segs []segment, y *[stride][]float64) {
 	off := int32(0)
 	for _, sg := range segs {
 		n := sg.n
 		q0, qp, qm := s0[off:off+n], sp[off:off+n], sm[off:off+n]
 		off += n
-		u0, u1, u2, u3, u4 := y0[sg.a:sg.a+n], y1[sg.a:sg.a+n], y2[sg.a:sg.a+n], y3[sg.a:sg.a+n], y4[sg.a:sg.a+n]
-		w0, w1, w2, w3, w4 := y0[sg.b:sg.b+n], y1[sg.b:sg.b+n], y2[sg.b:sg.b+n], y3[sg.b:sg.b+n], y4[sg.b:sg.b+n]
 		qp, qm = qp[:len(q0)], qm[:len(q0)]
-		u0, u1, u2, u3, u4 = u0[:len(q0)], u1[:len(q0)], u2[:len(q0)], u3[:len(q0)], u4[:len(q0)]
-		w0, w1, w2, w3, w4 = w0[:len(q0)], w1[:len(q0)], w2[:len(q0)], w3[:len(q0)], w4[:len(q0)]
+		ua, ub := sg.a, sg.b
+		u0, u1, u2, u3 := y[0][ua:ua+n], y[1][ua:ua+n], y[2][ua:ua+n], y[3][ua:ua+n]
+		u4, u5, u6, u7 := y[4][ua:ua+n], y[5][ua:ua+n], y[6][ua:ua+n], y[7][ua:ua+n]
+		w0, w1, w2, w3 := y[0][ub:ub+n], y[1][ub:ub+n], y[2][ub:ub+n], y[3][ub:ub+n]
+		w4, w5, w6, w7 := y[4][ub:ub+n], y[5][ub:ub+n], y[6][ub:ub+n], y[7][ub:ub+n]
+		m := len(q0)
+		u0, u1, u2, u3, u4, u5, u6, u7 = u0[:m], u1[:m], u2[:m], u3[:m], u4[:m], u5[:m], u6[:m], u7[:m]
+		w0, w1, w2, w3, w4, w5, w6, w7 = w0[:m], w1[:m], w2[:m], w3[:m], w4[:m], w5[:m], w6[:m], w7[:m]
 		for k := range q0 {
-			a0, a1, a2, a3, a4 := u0[k], u1[k], u2[k], u3[k], u4[k]
-			b0, b1, b2, b3, b4 := w0[k], w1[k], w2[k], w3[k], w4[k]
-			q0[k] += a1*b1 + a2*b2 + a3*b3 + a4*b4
-			qp[k] += a1*b0 + a2*b1 + a3*b2 + a4*b3
-			qm[k] += a0*b1 + a1*b2 + a2*b3 + a3*b4
+			a0, a1, a2, a3, a4, a5, a6, a7 := u0[k], u1[k], u2[k], u3[k], u4[k], u5[k], u6[k], u7[k]
+			b0, b1, b2, b3, b4, b5, b6, b7 := w0[k], w1[k], w2[k], w3[k], w4[k], w5[k], w6[k], w7[k]
+			q0[k] += a1*b1 + a2*b2 + a3*b3 + a4*b4 + a5*b5 + a6*b6 + a7*b7
+			qp[k] += a1*b0 + a2*b1 + a3*b2 + a4*b3 + a5*b4 + a6*b5 + a7*b6
+			qm[k] += a0*b1 + a1*b2 + a2*b3 + a3*b4 + a4*b5 + a5*b6 + a6*b7
 		}
 	}
 }

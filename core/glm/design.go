@@ -210,10 +210,7 @@ func (d *design) gram(dst []float64, rho float64) {
 func cholesky(a []float64, p int) bool {
 	for j := 0; j < p; j++ {
 		rj := a[j*p : j*p+j+1]
-		s := rj[j]
-		for k := 0; k < j; k++ {
-			s -= rj[k] * rj[k]
-		}
+		s := rj[j] - dot(rj[:j], rj[:j])
 		if !(s > 0) {
 			return false
 		}
@@ -221,11 +218,7 @@ func cholesky(a []float64, p int) bool {
 		rj[j] = ljj
 		for i := j + 1; i < p; i++ {
 			ri := a[i*p : i*p+j+1]
-			s := ri[j]
-			for k := 0; k < j; k++ {
-				s -= ri[k] * rj[k]
-			}
-			ri[j] = s / ljj
+			ri[j] = (ri[j] - dot(ri[:j], rj[:j])) / ljj
 		}
 	}
 	return true
@@ -235,22 +228,16 @@ func cholesky(a []float64, p int) bool {
 func forward(l []float64, p int, b []float64) {
 	for i := 0; i < p; i++ {
 		ri := l[i*p : i*p+i+1]
-		s := b[i]
-		for k := 0; k < i; k++ {
-			s -= ri[k] * b[k]
-		}
-		b[i] = s / ri[i]
+		b[i] = (b[i] - dot(ri[:i], b[:i])) / ri[i]
 	}
 }
 
-// backward solves L' w = b in place.
+// backward solves L' w = b in place, column by column of L' (rows of L: contiguous).
 func backward(l []float64, p int, b []float64) {
 	for i := p - 1; i >= 0; i-- {
-		s := b[i]
-		for k := i + 1; k < p; k++ {
-			s -= l[k*p+i] * b[k]
-		}
-		b[i] = s / l[i*p+i]
+		ri := l[i*p : i*p+i+1]
+		b[i] /= ri[i]
+		axpy(b[:i], ri[:i], -b[i])
 	}
 }
 
@@ -260,11 +247,39 @@ func cholSolve(l []float64, p int, b []float64) {
 	backward(l, p, b)
 }
 
+// dot is Σ a_i b_i, summed in order; unrolled by 4 because Go's WebAssembly output pays a
+// dispatch per loop iteration.
 func dot(a, b []float64) float64 {
 	b = b[:len(a)]
 	s := 0.0
-	for i, v := range a {
-		s += v * b[i]
+	i := 0
+	for ; i+4 <= len(a); i += 4 {
+		aa := (*[4]float64)(a[i : i+4])
+		bb := (*[4]float64)(b[i : i+4])
+		s += aa[0] * bb[0]
+		s += aa[1] * bb[1]
+		s += aa[2] * bb[2]
+		s += aa[3] * bb[3]
+	}
+	for ; i < len(a); i++ {
+		s += a[i] * b[i]
 	}
 	return s
+}
+
+// axpy: d += c·x, unrolled by 4.
+func axpy(d, x []float64, c float64) {
+	x = x[:len(d)]
+	i := 0
+	for ; i+4 <= len(d); i += 4 {
+		dd := (*[4]float64)(d[i : i+4])
+		xx := (*[4]float64)(x[i : i+4])
+		dd[0] += c * xx[0]
+		dd[1] += c * xx[1]
+		dd[2] += c * xx[2]
+		dd[3] += c * xx[3]
+	}
+	for ; i < len(d); i++ {
+		d[i] += c * x[i]
+	}
 }

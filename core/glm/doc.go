@@ -19,6 +19,15 @@
 //   - the smoothness (FWHM in voxels) of the standardised residuals, whitened under AR(1), from
 //     the neighbour cross-products, log-correlation form with the ν/(ν+1) correction (§f.1).
 //
+// Layout for speed (the package runs natively and as WebAssembly, where Go's output pays a
+// dispatch on every loop iteration): AddVolume gathers each volume's in-mask values once
+// (contiguous); every 7 volumes the batch is interleaved chunk by chunk (8 values per voxel
+// with the previous volume) and one kernel per regressor folds it into Sxy, Axy and Bxy,
+// stored interleaved per voxel, in a single long loop over voxels whose body is unrolled over
+// the batch. Fit solves the per-voxel p x p systems (OLS, the whitened normal equations, their
+// Cholesky factors and t contrasts) for blocks of 128 voxels at once, with each matrix element
+// laid out across the block, so the inner loops run over voxels rather than over p.
+//
 // The design must have full column rank and more rows than columns. When the constant is not
 // in the design's column space the first-sample offset is undone exactly before fitting.
 package glm

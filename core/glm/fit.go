@@ -134,11 +134,12 @@ func newVoxSums(p int) *voxSums {
 func (a *Accumulator) load(d *design, v int, s *voxSums) bool {
 	ok := true
 	for j := 0; j < a.p; j++ {
-		s.sxy[j], s.axy[j], s.bxy[j] = a.sxy[j][v], a.axy[j][v], a.bxy[j][v]
+		o := a.sxy[j][3*v : 3*v+3]
+		s.sxy[j], s.axy[j], s.bxy[j] = o[0], o[1], o[2]
 	}
 	s.syy, s.lyy, s.sy = a.syy[v], a.lyy[v], a.sy[v]
 	s.offSyy = s.syy
-	s.y1, s.yn = 0, a.ybuf[0][v]
+	s.y1, s.yn = 0, a.last(v)
 	if !d.hasConst {
 		// Without a constant in the model the offset would change the fit: undo it exactly.
 		c, n := a.y1[v], float64(a.n)
@@ -157,6 +158,28 @@ func (a *Accumulator) load(d *design, v int, s *voxSums) bool {
 		ok = ok && finite(s.sxy[j]) && finite(s.c[j])
 	}
 	return ok && finite(s.syy) && finite(s.lyy) && finite(s.yn) && finite(a.y1[v])
+}
+
+// sums writes voxel v's Sxy, Axy and Bxy into sxy, axy, bxy and returns its first and last
+// sample, as load (the offset undone when the constant is not in the design), without the
+// finiteness checks (for voxels already known valid).
+func (a *Accumulator) sums(d *design, v int, sxy, axy, bxy []float64) (y1, yn float64) {
+	sxy, axy, bxy = sxy[:a.p], axy[:a.p], bxy[:a.p]
+	for j := range sxy {
+		o := a.sxy[j][3*v : 3*v+3]
+		sxy[j], axy[j], bxy[j] = o[0], o[1], o[2]
+	}
+	yn = a.last(v)
+	if !d.hasConst {
+		c := a.y1[v]
+		for j := range sxy {
+			sxy[j] += c * d.sx[j]
+			axy[j] += c * (d.sx[j] - d.x1[j])
+			bxy[j] += c * (d.sx[j] - d.xn[j])
+		}
+		return c, yn + c
+	}
+	return 0, yn
 }
 
 // ols computes β̂ = Sxx⁻¹Sxy into beta and returns a0 = Σr², a1 = Σ r_t r_{t−1}
@@ -179,24 +202,6 @@ func (d *design) biasReduced(a0, a1 float64) float64 {
 	v0 := d.minv[0][0]*a0 + d.minv[0][1]*a1
 	v1 := d.minv[1][0]*a0 + d.minv[1][1]*a1
 	return v1 / v0
-}
-
-// gls fits the Prais–Winsten whitened model at rho from the sums: g receives the Cholesky
-// factor of X̃'X̃, rhs X̃'ỹ, beta β̃; it returns RSS = ỹ'ỹ − β̃'X̃'ỹ and false when X̃'X̃ is
-// not positive definite.
-func (d *design) gls(s *voxSums, rho float64, g, rhs, beta []float64) (float64, bool) {
-	d.gram(g, rho)
-	if !cholesky(g, d.p) {
-		return math.NaN(), false
-	}
-	a, r2 := 1+rho*rho, rho*rho
-	for j := 0; j < d.p; j++ {
-		rhs[j] = a*s.sxy[j] - rho*s.c[j] - r2*(d.x1[j]*s.y1+d.xn[j]*s.yn)
-	}
-	copy(beta, rhs)
-	cholSolve(g, d.p, beta)
-	yy := a*s.syy - 2*rho*s.lyy - r2*(s.y1*s.y1+s.yn*s.yn)
-	return yy - dot(beta, rhs), true
 }
 
 // Fit estimates the model at every in-mask voxel from the sums: OLS, the AR(1) coefficient,
@@ -252,16 +257,27 @@ func (a *Accumulator) Fit(opt Options) (*Fit, error) {
 	f.beta = make([]float64, nv*p)
 	f.first = append([]float64(nil), a.y1...)
 
-	s := newVoxSums(p)
-	beta := make([]float64, p)
+	bs := newBlockSolver(d)
 	invN := 1 / float64(a.n)
-	for v := 0; v < nv; v++ {
-		f.Mean[v] = a.y1[v] + a.sy[v]*invN
-		ok := a.load(d, v, s)
-		tiny := 1e-24 * float64(a.n) * (1 + a.y1[v]*a.y1[v])
-		if ok && s.offSyy > tiny {
-			a0, a1 := d.ols(s, beta)
-			if a0 > 1e-12*s.syy && finite(a0) && finite(a1) {
+	use := make([]bool, blockVoxels)
+	bsum := newBlockSums()
+	for lo := 0; lo < nv; lo += blockVoxels {
+		hi := min(lo+blockVoxels, nv)
+		bs.gatherSums(a, lo, hi-lo, bsum)
+		for i := range use {
+			use[i] = false
+			if v := lo + i; v < hi {
+				f.Mean[v] = a.y1[v] + a.sy[v]*invN
+				tiny := 1e-24 * float64(a.n) * (1 + a.y1[v]*a.y1[v])
+				use[i] = bsum.chk[i] == 0 && bsum.off[i] > tiny
+			}
+		}
+		copy(bs.yy, bsum.syy)
+		copy(bs.ssq, bsum.lyy)
+		bs.ols()
+		for v := lo; v < hi; v++ {
+			i := v - lo
+			if a0, a1 := bs.yy[i], bs.ssq[i]; use[i] && a0 > 1e-12*bsum.syy[i] && finite(a0) && finite(a1) {
 				r := d.biasReduced(a0, a1)
 				if math.IsNaN(r) {
 					r = 0
@@ -270,9 +286,9 @@ func (a *Accumulator) Fit(opt Options) (*Fit, error) {
 				f.Valid[v] = true
 				continue
 			}
+			f.RhoVoxel[v] = math.NaN()
+			f.Excluded++
 		}
-		f.RhoVoxel[v] = math.NaN()
-		f.Excluded++
 	}
 
 	switch {
@@ -291,32 +307,62 @@ func (a *Accumulator) Fit(opt Options) (*Fit, error) {
 	for i, c := range cons {
 		f.Stats[i] = c.newStat(nv, f.DF)
 	}
-	g := make([]float64, p*p)
-	rhs := make([]float64, p)
 	sc := newScratch(p)
 	braw := make([]float64, p)
-	for v := 0; v < nv; v++ {
-		bv := f.beta[v*p : (v+1)*p]
-		if f.Valid[v] {
-			a.load(d, v, s)
-			rss, ok := d.gls(s, f.Rho[v], g, rhs, bv)
-			if ok && rss > 0 && finite(rss) {
-				f.Sigma2[v] = rss / f.DF
-				f.rawBeta(v, braw)
-				for i, c := range cons {
-					c.eval(f.Stats[i], v, g, p, braw, f.Sigma2[v], sc)
-				}
-				continue
+	rho := make([]float64, blockVoxels)
+	for lo := 0; lo < nv; lo += blockVoxels {
+		hi := min(lo+blockVoxels, nv)
+		bs.gatherSums(a, lo, hi-lo, bsum)
+		for i := range use {
+			v := lo + i
+			use[i] = v < hi && f.Valid[v]
+			if use[i] {
+				rho[i] = f.Rho[v]
 			}
-			f.Valid[v] = false
-			f.Excluded++
 		}
-		f.Rho[v], f.RhoVoxel[v], f.Sigma2[v] = math.NaN(), math.NaN(), math.NaN()
-		for j := range bv {
-			bv[j] = math.NaN()
+		bs.setGLS(bsum, rho, use)
+		bs.solve()
+		for v := lo; v < hi; v++ {
+			i := v - lo
+			bv := f.beta[v*p : (v+1)*p]
+			if f.Valid[v] {
+				if rss := bs.yy[i]; !bs.bad[i] && rss > 0 && finite(rss) {
+					f.Sigma2[v] = rss / f.DF
+					for j := range bv {
+						bv[j] = bs.beta[j*blockVoxels+i]
+					}
+					continue
+				}
+				f.Valid[v] = false
+				f.Excluded++
+			}
+			f.Rho[v], f.RhoVoxel[v], f.Sigma2[v] = math.NaN(), math.NaN(), math.NaN()
+			for j := range bv {
+				bv[j] = math.NaN()
+			}
+			for _, st := range f.Stats {
+				st.setNaN(v)
+			}
 		}
-		for _, st := range f.Stats {
-			st.setNaN(v)
+		for k, c := range cons {
+			st := f.Stats[k]
+			if !c.f {
+				bs.tSE(c.basis[0])
+			}
+			for v := lo; v < hi; v++ {
+				if !f.Valid[v] {
+					continue
+				}
+				i := v - lo
+				f.rawBeta(v, braw)
+				if c.f {
+					c.eval(st, v, bs.factor(i), p, braw, f.Sigma2[v], sc)
+					continue
+				}
+				eff := dot(c.basis[0], braw)
+				se := math.Sqrt(f.Sigma2[v] * bs.ssq[i])
+				st.Effect[v], st.SE[v], st.Stat[v] = eff, se, eff/se
+			}
 		}
 	}
 	if f.Excluded > 0 {

@@ -30,25 +30,44 @@ func (a *Accumulator) smoothness(f *Fit) [3]float64 {
 	// per voxel in the window: Sxx β, P1 β, x1'β, xn'β, then Sxy, Axy, Bxy, y1, yn
 	w := 5*p + 4
 	cur, nxt := make([]float64, maxS*w), make([]float64, maxS*w)
-	ls := newVoxSums(p)
+	// Sxx β, P1 β, x1'β and xn'β are formed for blocks of voxels with the voxel index innermost
+	// (long contiguous loops; see blockVoxels).
+	const bk = blockVoxels
+	bt := make([]float64, p*bk) // β, [k*bk + voxel of the block]
+	u := make([]float64, bk)
+	row := func(k int) []float64 { return bt[k*bk : (k+1)*bk] }
+	combine := func(buf []float64, base, lo, m, col int, coef []float64) {
+		clear(u)
+		axpyRows(u, coef, row)
+		for i := 0; i < m; i++ {
+			buf[(lo+i-base)*w+col] = u[i]
+		}
+	}
 	fill := func(buf []float64, z int) {
+		for lo := start[z]; lo < start[z+1]; lo += bk {
+			m := min(bk, start[z+1]-lo)
+			for k := 0; k < p; k++ {
+				r := row(k)
+				clear(r)
+				for i := 0; i < m; i++ {
+					if v := lo + i; f.Valid[v] {
+						r[i] = f.beta[v*p+k]
+					}
+				}
+			}
+			for j := 0; j < p; j++ {
+				combine(buf, start[z], lo, m, j, d.sxx[j*p:(j+1)*p])
+				combine(buf, start[z], lo, m, p+j, d.p1[j*p:(j+1)*p])
+			}
+			combine(buf, start[z], lo, m, 2*p, d.x1)
+			combine(buf, start[z], lo, m, 2*p+1, d.xn)
+		}
 		for v := start[z]; v < start[z+1]; v++ {
 			o := buf[(v-start[z])*w : (v-start[z]+1)*w]
-			b := f.beta[v*p : (v+1)*p]
 			if !f.Valid[v] {
 				continue
 			}
-			for j := 0; j < p; j++ {
-				o[j] = dot(d.sxx[j*p:(j+1)*p], b)
-				o[p+j] = dot(d.p1[j*p:(j+1)*p], b)
-			}
-			o[2*p] = dot(d.x1, b)
-			o[2*p+1] = dot(d.xn, b)
-			a.load(d, v, ls)
-			copy(o[2*p+2:3*p+2], ls.sxy)
-			copy(o[3*p+2:4*p+2], ls.axy)
-			copy(o[4*p+2:5*p+2], ls.bxy)
-			o[5*p+2], o[5*p+3] = ls.y1, ls.yn
+			o[5*p+2], o[5*p+3] = a.sums(d, v, o[2*p+2:3*p+2], o[3*p+2:4*p+2], o[4*p+2:5*p+2])
 		}
 	}
 	view := func(o []float64, s *voxSums) {
@@ -91,7 +110,7 @@ func (a *Accumulator) smoothness(f *Fit) [3]float64 {
 					// undo the first-sample offsets of both voxels exactly (as in load)
 					cv, cu, n := a.y1[v], a.y1[u], float64(a.n)
 					yv, yu := a.sy[v], a.sy[u]
-					ynv, ynu := a.ybuf[0][v], a.ybuf[0][u]
+					ynv, ynu := a.last(v), a.last(u)
 					s0 += cu*yv + cv*yu + n*cv*cu
 					sp += cu*yv + cv*(yu-ynu) + (n-1)*cv*cu
 					sm += cu*(yv-ynv) + cv*yu + (n-1)*cv*cu
@@ -139,11 +158,28 @@ func pairCross(d *design, sv, sw *voxSums, bv, bw, pv, pw []float64, rv, rw, s0,
 	yy := cv*cw*sv.y1*sw.y1 + (s0 - sv.y1*sw.y1) - rw*sp - rv*sm + rv*rw*(s0-sv.yn*sw.yn)
 	x1v, xnv := pv[2*p], pv[2*p+1]
 	x1w, xnw := pw[2*p], pw[2*p+1]
-	bvS := dot(bv, sw.sxy)
-	bvXvyw := cv*cw*x1v*sw.y1 + bvS - x1v*sw.y1 - rw*dot(bv, sw.axy) - rv*dot(bv, sw.bxy) + rv*rw*(bvS-xnv*sw.yn)
-	bwS := dot(bw, sv.sxy)
-	bwXwyv := cw*cv*x1w*sv.y1 + bwS - x1w*sv.y1 - rv*dot(bw, sv.axy) - rw*dot(bw, sv.bxy) + rw*rv*(bwS-xnw*sv.yn)
-	bGb := dot(bv, pw[:p])
-	bXXb := cv*cw*x1v*x1w + bGb - x1v*x1w - rw*dot(bv, pw[p:2*p]) - rv*dot(bw, pv[p:2*p]) + rv*rw*(bGb-xnv*xnw)
+	// The nine inner products over the design columns in one loop (each summed in column
+	// order, as dot does).
+	bv = bv[:p]
+	bw = bw[:len(bv)]
+	ws, wa, wb := sw.sxy[:len(bv)], sw.axy[:len(bv)], sw.bxy[:len(bv)]
+	vs, va, vb := sv.sxy[:len(bv)], sv.axy[:len(bv)], sv.bxy[:len(bv)]
+	gw, qw, qv := pw[:len(bv)], pw[p:p+len(bv)], pv[p:p+len(bv)]
+	var bvS, bvA, bvB, bwS, bwA, bwB, bGb, bvQ, bwQ float64
+	for j, x := range bv {
+		y := bw[j]
+		bvS += x * ws[j]
+		bvA += x * wa[j]
+		bvB += x * wb[j]
+		bwS += y * vs[j]
+		bwA += y * va[j]
+		bwB += y * vb[j]
+		bGb += x * gw[j]
+		bvQ += x * qw[j]
+		bwQ += y * qv[j]
+	}
+	bvXvyw := cv*cw*x1v*sw.y1 + bvS - x1v*sw.y1 - rw*bvA - rv*bvB + rv*rw*(bvS-xnv*sw.yn)
+	bwXwyv := cw*cv*x1w*sv.y1 + bwS - x1w*sv.y1 - rv*bwA - rw*bwB + rw*rv*(bwS-xnw*sv.yn)
+	bXXb := cv*cw*x1v*x1w + bGb - x1v*x1w - rw*bvQ - rv*bwQ + rv*rw*(bGb-xnv*xnw)
 	return yy - bvXvyw - bwXwyv + bXXb
 }
