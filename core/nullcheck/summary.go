@@ -4,45 +4,21 @@ import (
 	"fmt"
 	"math"
 
-	"gonum.org/v1/gonum/mathext"
-
+	"winnow/core/dist"
 	"winnow/core/report"
 )
 
-// BetaQuantile returns y with I_y(a, b) = prob (the regularised incomplete beta, gonum
-// mathext.RegIncBeta), by bisection on [0, 1] to full double precision.
-func BetaQuantile(a, b, prob float64) float64 {
-	lo, hi := 0.0, 1.0
-	for range 200 {
-		mid := lo + (hi-lo)/2
-		if mid <= lo || mid >= hi {
-			break
-		}
-		if mathext.RegIncBeta(a, b, mid) < prob {
-			lo = mid
-		} else {
-			hi = mid
-		}
-	}
-	return lo + (hi-lo)/2
-}
+// BetaQuantile returns y with I_y(a, b) = prob (see [dist.BetaQuantile]).
+func BetaQuantile(a, b, prob float64) float64 { return dist.BetaQuantile(a, b, prob) }
 
 // ClopperPearson returns the exact two-sided 95 % interval (Clopper & Pearson 1934,
-// Biometrika) of a binomial proportion with x successes in n trials: the lower bound is
-// the 0.025 quantile of Beta(x, n − x + 1) (0 when x = 0), the upper the 0.975 quantile
-// of Beta(x + 1, n − x) (1 when x = n). It panics unless 0 ≤ x ≤ n and n ≥ 1.
+// Biometrika) of a binomial proportion with x successes in n trials (see
+// [dist.ClopperPearson]). It panics unless 0 ≤ x ≤ n and n ≥ 1.
 func ClopperPearson(x, n int) (lo, hi float64) {
 	if n < 1 || x < 0 || x > n {
 		panic(fmt.Sprintf("nullcheck: Clopper–Pearson with x = %d, n = %d", x, n))
 	}
-	lo, hi = 0, 1
-	if x > 0 {
-		lo = BetaQuantile(float64(x), float64(n-x+1), 0.025)
-	}
-	if x < n {
-		hi = BetaQuantile(float64(x+1), float64(n-x), 0.975)
-	}
-	return lo, hi
+	return dist.ClopperPearson(x, n, 0.05)
 }
 
 // Record turns the count of chance designs with a finding into the summary record: the
