@@ -45,7 +45,18 @@
 // near-linear union-find. Before the sweep, one pass in index order finds for every voxel which
 // of its already-swept neighbours are joined to each other inside its 3×3×3 cube (through swept
 // cells); such neighbours are already in one component, so the sweep looks up one of each
-// group, usually a single find per voxel (derived here). [TFCEStepped] is the
+// group, usually a single find per voxel (derived here). While the maps have fewer than 2^20
+// voxels above zero, the three cells of a cube row are compared with the voxel's sweep position
+// in one 64-bit subtraction on 21-bit lanes (a guard bit per lane keeps the lanes apart), so a
+// voxel's mask takes nine subtractions; larger maps compare one cell at a time.
+//
+// Permutation steps need only the largest TFCE ([TFCEMax], [TFCEMaxTail]). It lies at a voxel
+// swept before all of its neighbours (a local maximum): a voxel v swept after a neighbour u
+// shares u's component at every level up to h_v, so TFCE(u) ≥ TFCE(v). Only those voxels' path
+// sums are formed, in the same arithmetic as the map, so the maximum equals the map's maximum.
+// Float32 maps (the permutation case) sort on 32-bit value keys with the voxel index packed
+// alongside, three radix passes; float64 maps sort on all 64 bits, so their result is exact
+// for the float64 values. [TFCEStepped] is the
 // discretised form Σ_k e(v, k·dh)^E (k·dh)^H dh over k·dh ≤ h_v, kept for checks and benchmarks;
 // it is biased by O(dh).
 //
@@ -56,8 +67,9 @@
 //
 // # Resource limits
 //
-// Grids are limited to 2^30 voxels (indices are int32). A [TFCEWorkspace] keeps 4 bytes per
+// Grids are limited to 2^30 voxels (indices are int32). A [TFCEWorkspace] keeps 12 bytes per
 // voxel of the grid padded by one voxel on each side, plus 60 bytes per voxel above zero (68
-// when E ≠ 0.5), sized for the first map, with a quarter to spare when a later map needs more.
+// for float64 maps), sized for the first map, with a quarter to spare when a later map needs
+// more.
 // [TFCEStepped] labels the whole grid once per level, ⌊max/dh⌋ times.
 package cluster

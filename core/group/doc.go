@@ -39,6 +39,17 @@
 // evaluated in voxel chunks as long contiguous loops. A voxel whose residual sum of squares is
 // ≤ 1e−12·SS gets statistic 0 in that relabelling.
 //
+// Sign flips only change the signs of the rows of that product, so the subjects are split into
+// groups of four and, for a block of 32 relabellings at a time, the partial sums
+// Σ_{i in group} ±u_ik·R_i of all 16 sign patterns of each group are tabulated per voxel
+// (flipping subject j subtracts 2·u_jk·R_j from a pattern without it). Each relabelling then
+// adds one table row per group: n/4 additions per voxel instead of n multiply-adds. Every
+// relabelling's sum is formed in the same order whatever its block, so results do not depend
+// on the number of workers or on how the index range is split. TFCE per relabelling is only its
+// maximum (cluster.TFCEMaxTail, positive tail), with no map written. A worker keeps one
+// float32 grid per relabelling of its block (32 for sign flips, 8 for permutations) when
+// cluster or TFCE maxima are recorded.
+//
 // # Relabellings
 //
 // There are 2^n sign flips; the unique permutations are the distinct orderings of the design's
