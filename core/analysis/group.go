@@ -822,7 +822,7 @@ func nullCheck(st *groupState, nulls []groupNull) *report.NullCheck {
 	if c, ok := d.Critical(st.Alpha); ok {
 		found = d.Above(c)
 	}
-	lo, hi := group.ClopperPearson(found, gc.N, 0.05)
+	lo, hi := dist.ClopperPearson(found, gc.N, 0.05)
 	return &report.NullCheck{Designs: gc.N, WithFindings: found, FWEEstimate: float64(found) / float64(gc.N), CI95: [2]float64{lo, hi}}
 }
 

@@ -14,7 +14,7 @@ import (
 	"strings"
 	"testing"
 
-	"winnow/core/group"
+	"winnow/core/dist"
 	"winnow/core/infer"
 	"winnow/core/nifti"
 	"winnow/core/report"
@@ -157,7 +157,7 @@ func TestGroupOneSample(t *testing.T) {
 	if nc == nil || nc.Designs != 500 || nc.WithFindings > 25 || nc.FWEEstimate != float64(nc.WithFindings)/500 {
 		t.Fatalf("null check %+v", nc)
 	}
-	if lo, hi := group.ClopperPearson(nc.WithFindings, 500, 0.05); nc.CI95 != [2]float64{lo, hi} {
+	if lo, hi := dist.ClopperPearson(nc.WithFindings, 500, 0.05); nc.CI95 != [2]float64{lo, hi} {
 		t.Errorf("ci95 %v", nc.CI95)
 	}
 }

@@ -369,43 +369,6 @@ func TestRandomPlan(t *testing.T) {
 	}
 }
 
-// TestClopperPearsonClosedForms: for x = 0 the upper bound is 1 − (a/2)^(1/n), for x = n the
-// lower bound is (a/2)^(1/n) (exact, from the definition of the Clopper–Pearson interval); and
-// the bounds solve P(X ≥ x) = a/2, P(X ≤ x) = a/2 for the binomial (definition).
-func TestClopperPearsonClosedForms(t *testing.T) {
-	for _, n := range []int{1, 5, 40, 200, 5000} {
-		lo, hi := ClopperPearson(0, n, 0.05)
-		if want := 1 - math.Pow(0.025, 1/float64(n)); lo != 0 || math.Abs(hi-want) > 1e-12 {
-			t.Errorf("x=0, n=%d: [%g, %g], want [0, %g]", n, lo, hi, want)
-		}
-		lo, hi = ClopperPearson(n, n, 0.05)
-		if want := math.Pow(0.025, 1/float64(n)); hi != 1 || math.Abs(lo-want) > 1e-12 {
-			t.Errorf("x=n=%d: [%g, %g], want [%g, 1]", n, lo, hi, want)
-		}
-	}
-	binomTail := func(x, n int, p float64, upper bool) float64 {
-		s := 0.0
-		for k := 0; k <= n; k++ {
-			if (upper && k >= x) || (!upper && k <= x) {
-				lg1, _ := math.Lgamma(float64(n + 1))
-				lg2, _ := math.Lgamma(float64(k + 1))
-				lg3, _ := math.Lgamma(float64(n - k + 1))
-				s += math.Exp(lg1 - lg2 - lg3 + float64(k)*math.Log(p) + float64(n-k)*math.Log1p(-p))
-			}
-		}
-		return s
-	}
-	for _, c := range [][2]int{{1, 40}, {3, 200}, {12, 256}} {
-		lo, hi := ClopperPearson(c[0], c[1], 0.05)
-		if e := binomTail(c[0], c[1], lo, true); math.Abs(e-0.025) > 1e-9 {
-			t.Errorf("%v: P(X >= x | lo) = %g, want 0.025", c, e)
-		}
-		if e := binomTail(c[0], c[1], hi, false); math.Abs(e-0.025) > 1e-9 {
-			t.Errorf("%v: P(X <= x | hi) = %g, want 0.025", c, e)
-		}
-	}
-}
-
 // TestInterleavedGroupsExhaustive: with the groups interleaved (the identity is not the first
 // relabelling in lexicographic order) the exhaustive null equals a direct enumeration of all
 // C(8, 4) = 70 splits with the pooled-variance two-sample t (textbook formula, common practice).

@@ -11,6 +11,8 @@ import (
 	"time"
 
 	"gonum.org/v1/gonum/mat"
+
+	"winnow/core/dist"
 )
 
 // smoothNoise returns n realisations of white noise on dims smoothed by a separable Gaussian of
@@ -112,7 +114,7 @@ func TestNullFWE(t *testing.T) {
 		name  string
 		found int
 	}{{"fwe-perm", foundMax}, {"tfce", foundTFCE}} {
-		lo, hi := ClopperPearson(c.found, sets, 0.001)
+		lo, hi := dist.ClopperPearson(c.found, sets, 0.001)
 		t.Logf("%s: %d of %d null sets with a finding (FWE %.3f, 99.9%% CI %.3f to %.3f)", c.name, c.found, sets, float64(c.found)/sets, lo, hi)
 		if lo > alpha {
 			t.Errorf("%s: familywise error %d/%d is above the nominal %g", c.name, c.found, sets, alpha)

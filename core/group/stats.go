@@ -5,8 +5,6 @@ import (
 	"math"
 	"slices"
 	"sort"
-
-	"gonum.org/v1/gonum/mathext"
 )
 
 // Distribution is a sorted permutation null distribution of a maximum (identity included).
@@ -56,42 +54,6 @@ func (d Distribution) Critical(alpha float64) (value float64, ok bool) {
 func (d Distribution) Above(u float64) int {
 	i := sort.Search(len(d.asc), func(i int) bool { return d.asc[i] > u })
 	return len(d.asc) - i
-}
-
-// ClopperPearson returns the exact (Clopper & Pearson 1934) two-sided interval of confidence
-// 1 − a for a binomial proportion with x successes in n trials: the lower bound is the a/2
-// quantile of Beta(x, n − x + 1) (0 when x = 0), the upper the 1 − a/2 quantile of
-// Beta(x + 1, n − x) (1 when x = n).
-func ClopperPearson(x, n int, a float64) (lo, hi float64) {
-	if n < 1 || x < 0 || x > n || !(a > 0 && a < 1) {
-		panic(fmt.Sprintf("group: Clopper–Pearson with x = %d, n = %d, a = %g", x, n, a))
-	}
-	lo, hi = 0, 1
-	if x > 0 {
-		lo = betaQuantile(float64(x), float64(n-x+1), a/2)
-	}
-	if x < n {
-		hi = betaQuantile(float64(x+1), float64(n-x), 1-a/2)
-	}
-	return lo, hi
-}
-
-// betaQuantile returns y with I_y(a, b) = p, by bisection on the regularised incomplete beta
-// (monotone in y), to full double precision.
-func betaQuantile(a, b, p float64) float64 {
-	lo, hi := 0.0, 1.0
-	for range 200 {
-		mid := lo + (hi-lo)/2
-		if mid <= lo || mid >= hi {
-			break
-		}
-		if mathext.RegIncBeta(a, b, mid) < p {
-			lo = mid
-		} else {
-			hi = mid
-		}
-	}
-	return lo + (hi-lo)/2
 }
 
 // Residuals returns the full-model residuals, N×V row-major: rz − U(U'rz).
