@@ -52,19 +52,12 @@ func groupSource(msg js.Value) (func() (analysis.GroupInputs, error), error) {
 			r, size := openBlob(b)
 			in.Maps = append(in.Maps, analysis.Input{Name: name, R: r, Size: size})
 		}
-		if present(msg.Get("design")) {
-			d, err := fileField(msg, "design", "design.tsv", false)
-			if err != nil {
-				return in, err
-			}
-			in.Design = &d
+		var err error
+		if in.Design, err = optionalField(msg, "design", "design.tsv", false); err != nil {
+			return in, err
 		}
-		if present(msg.Get("mask")) {
-			m, err := fileField(msg, "mask", "mask.nii.gz", true)
-			if err != nil {
-				return in, err
-			}
-			in.Mask = &m
+		if in.Mask, err = optionalField(msg, "mask", "mask.nii.gz", true); err != nil {
+			return in, err
 		}
 		return in, nil
 	}, nil

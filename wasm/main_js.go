@@ -518,21 +518,25 @@ func decodeInputs(msg js.Value) (analysis.FitInputs, error) {
 	if in.Events, err = fileField(msg, "events", "events.tsv", false); err != nil {
 		return in, err
 	}
-	if present(msg.Get("confounds")) {
-		c, err := fileField(msg, "confounds", "confounds.tsv", false)
-		if err != nil {
-			return in, err
-		}
-		in.Confounds = &c
+	if in.Confounds, err = optionalField(msg, "confounds", "confounds.tsv", false); err != nil {
+		return in, err
 	}
-	if present(msg.Get("mask")) {
-		m, err := fileField(msg, "mask", "mask.nii.gz", true)
-		if err != nil {
-			return in, err
-		}
-		in.Mask = &m
+	if in.Mask, err = optionalField(msg, "mask", "mask.nii.gz", true); err != nil {
+		return in, err
 	}
 	return in, nil
+}
+
+// optionalField is fileField for an input that may be absent (nil then).
+func optionalField(msg js.Value, key, defName string, blobOnly bool) (*analysis.Input, error) {
+	if !present(msg.Get(key)) {
+		return nil, nil
+	}
+	in, err := fileField(msg, key, defName, blobOnly)
+	if err != nil {
+		return nil, err
+	}
+	return &in, nil
 }
 
 // fileField reads the Blob (or, unless blobOnly, the text) in msg[key] and
