@@ -196,18 +196,20 @@ function groupWorkers() {
 
 const groupFiles = { maps: [], design: null, background: null };
 
+// numField reads a number input; blank means 0 (the option's default).
+function numField(id) {
+  const v = $(id).value.trim();
+  return v === "" ? 0 : Number(v);
+}
+
 function groupSettingsFromForm() {
-  const num = (id) => {
-    const v = $(id).value.trim();
-    return v === "" ? 0 : Number(v);
-  };
   return {
     contrasts: $("g-contrasts").value.split("\n").map((x) => x.trim()).filter(Boolean),
     correct: $("g-correct").value,
-    perms: num("g-perms"),
-    seed: $("g-seed").value.trim() === "" ? undefined : num("g-seed"),
-    alpha: num("g-alpha"),
-    clusterP: num("g-cluster-p"),
+    perms: numField("g-perms"),
+    seed: $("g-seed").value.trim() === "" ? undefined : numField("g-seed"),
+    alpha: numField("g-alpha"),
+    clusterP: numField("g-cluster-p"),
   };
 }
 
@@ -408,19 +410,15 @@ function onProgress(msg) {
 }
 
 function settingsFromForm() {
-  const num = (id) => {
-    const v = $(id).value.trim();
-    return v === "" ? 0 : Number(v);
-  };
   return {
     contrasts: $("contrasts").value.split("\n").map((s) => s.trim()).filter(Boolean),
     correct: $("correct").value,
-    alpha: num("alpha"),
-    clusterP: num("cluster-p"),
-    smooth: num("smooth"),
-    highpass: $("highpass").value.trim() === "" ? 128 : num("highpass"),
+    alpha: numField("alpha"),
+    clusterP: numField("cluster-p"),
+    smooth: numField("smooth"),
+    highpass: $("highpass").value.trim() === "" ? 128 : numField("highpass"),
     noise: $("noise").value,
-    tr: num("tr"),
+    tr: numField("tr"),
     realign: $("realign").checked,
     nullCheck: $("null-check").checked,
   };
