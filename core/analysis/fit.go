@@ -265,7 +265,11 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 		mask = autoMask(first, grid.Dims)
 	}
 	nonFinite := make([]bool, nvox)
-	markNonFinite(first, mask, nonFinite)
+	// Integer data within the float32 range cannot hold NaN or ±Inf: no scan.
+	checkFinite := !hdr.FiniteValues()
+	if checkFinite {
+		markNonFinite(first, mask, nonFinite)
+	}
 	voxels := maskVoxels(mask)
 	if len(voxels) == 0 {
 		f := in.Bold.Name
@@ -273,10 +277,6 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 			f = in.Mask.Name
 		}
 		return nil, inputErrf(f, "the analysis mask is empty; want at least one brain voxel")
-	}
-	chance, err := newNullCheck(opt.NullCheck, ev, des, cons, opt, nvol, tr, grid.Dims, voxels)
-	if err != nil {
-		return nil, err
 	}
 
 	// The stream: smoothing, then the sums.
@@ -287,6 +287,10 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 		smoothed = make([]float32, nvox)
 	}
 	acc := glm.NewAccumulator(des.X, grid.Dims, voxels)
+	chance, err := newNullCheck(opt.NullCheck, ev, des, cons, opt, nvol, tr, grid.Dims, voxels, acc)
+	if err != nil {
+		return nil, err
+	}
 	var rl *motion.Realigner
 	var realigned []float32
 	var params []motion.Params
@@ -320,7 +324,7 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 			rl.Resample(realigned, vol, p)
 			copy(vol, realigned)
 		}
-		if t > 0 {
+		if t > 0 && checkFinite {
 			markNonFinite(vol, mask, nonFinite)
 		}
 		v := vol

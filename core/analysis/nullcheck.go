@@ -34,7 +34,7 @@ type chanceCheck struct {
 // the check is off and nil is returned). Problems are input errors naming --null-check: a
 // contrast that weighs a column with no chance counterpart, a design whose events leave no
 // room for chance layouts, or sums that would exceed MaxNullCheckBytes.
-func newNullCheck(k int, ev *events.Events, des *design.Design, cons []*contrast.Contrast, opt FitOptions, nvol int, tr float64, dims [3]int, voxels []int32) (*chanceCheck, error) {
+func newNullCheck(k int, ev *events.Events, des *design.Design, cons []*contrast.Contrast, opt FitOptions, nvol int, tr float64, dims [3]int, voxels []int32, real nullcheck.RealSums) (*chanceCheck, error) {
 	if k == 0 {
 		return nil, nil
 	}
@@ -78,10 +78,19 @@ func newNullCheck(k int, ev *events.Events, des *design.Design, cons []*contrast
 	}
 	_, p := des.X.Dims()
 	whiten := opt.Noise != glm.NoiseOLS
-	if b := nullcheck.Bytes(d, p, len(voxels), whiten); b > MaxNullCheckBytes {
+	b := nullcheck.Bytes(d, p, len(voxels), whiten)
+	if real != nil {
+		b = nullcheck.SharedBytes(d, len(voxels), whiten)
+	}
+	if b > MaxNullCheckBytes {
 		return nil, inputErrf(flag, "%d chance designs over %d voxels need %d MB for their sums, more than the limit of %d MB; want fewer designs", k, len(voxels), b>>20, MaxNullCheckBytes>>20)
 	}
-	nc.acc = nullcheck.NewAccumulator(d, des.X, dims, voxels, whiten)
+	if real != nil {
+		// The real design's sums are gathered once, by the real fit's accumulator.
+		nc.acc = nullcheck.NewSharedAccumulator(d, des.X, dims, voxels, whiten, real)
+	} else {
+		nc.acc = nullcheck.NewAccumulator(d, des.X, dims, voxels, whiten)
+	}
 	return nc, nil
 }
 

@@ -81,11 +81,11 @@ func simulate(t *testing.T, specs []string, k int, noise glm.Noise, amp float64)
 		mask[i] = true
 	}
 	voxels := maskVoxels(mask)
-	nc, err := newNullCheck(k, ev, des, cons, opt, n, tr, dims, voxels)
+	acc := glm.NewAccumulator(des.X, dims, voxels)
+	nc, err := newNullCheck(k, ev, des, cons, opt, n, tr, dims, voxels, acc)
 	if err != nil {
 		t.Fatal(err)
 	}
-	acc := glm.NewAccumulator(des.X, dims, voxels)
 	sm := smooth.New(dims, smooth.Sigmas(fwhmMM, grid.VoxelMM), mask)
 	rng := rand.New(rand.NewPCG(31, 32))
 	white := make([]float32, nvox)
@@ -245,17 +245,17 @@ func TestNullCheckRefusals(t *testing.T) {
 	}
 	dims := [3]int{2, 2, 1}
 	vox := []int32{0, 1, 2, 3}
-	if nc, err := newNullCheck(0, ev, des, []*contrast.Contrast{c}, opt, 120, 2, dims, vox); nc != nil || err != nil {
+	if nc, err := newNullCheck(0, ev, des, []*contrast.Contrast{c}, opt, 120, 2, dims, vox, nil); nc != nil || err != nil {
 		t.Errorf("k = 0: %v %v", nc, err)
 	}
 	for _, k := range []int{-1, nullcheck.MaxDesigns + 1} {
-		_, err := newNullCheck(k, ev, des, nil, opt, 120, 2, dims, vox)
+		_, err := newNullCheck(k, ev, des, nil, opt, 120, 2, dims, vox, nil)
 		var ie *InputError
 		if !errors.As(err, &ie) || ie.File != "--null-check" {
 			t.Errorf("k = %d: %v", k, err)
 		}
 	}
-	_, err = newNullCheck(5, ev, des, []*contrast.Contrast{c}, opt, 120, 2, dims, vox)
+	_, err = newNullCheck(5, ev, des, []*contrast.Contrast{c}, opt, 120, 2, dims, vox, nil)
 	if err == nil || !strings.Contains(err.Error(), `"intercept"`) || !strings.Contains(err.Error(), "--null-check") {
 		t.Errorf("intercept contrast: %v", err)
 	}

@@ -282,6 +282,30 @@ func gather[T float32 | float64](dst []float64, vol []T, runs []segment, y1 []fl
 	}
 }
 
+// DesignSums writes, for design column j and the in-mask voxels lo..hi−1 (indices into the
+// voxel list), S = Σ_t x_tj y_t into s and C = Σ_{t≥2} (x_tj y_{t−1} + x_{t−1,j} y_t) into c, of
+// each voxel's series offset by its first sample (methods notes §d.5). Another accumulator of
+// the same pass (the null check's) reads the real design's sums here instead of summing them
+// again. Valid once every volume has been added; pending volumes are folded first.
+func (a *Accumulator) DesignSums(j, lo, hi int, s, c []float64) {
+	a.flush()
+	src := a.sxy[j][3*lo : 3*hi]
+	s, c = s[:hi-lo], c[:hi-lo]
+	for i := range s {
+		o := (*[3]float64)(src[3*i : 3*i+3])
+		s[i], c[i] = o[0], o[1]+o[2]
+	}
+}
+
+// SeriesSums writes, for the in-mask voxels lo..hi−1, Σ_t y_t², Σ_{t≥2} y_t y_{t−1} and the last
+// sample y_n of each voxel's offset series (as DesignSums).
+func (a *Accumulator) SeriesSums(lo, hi int, syy, lyy, last []float64) {
+	a.flush()
+	copy(syy[:hi-lo], a.syy[lo:hi])
+	copy(lyy[:hi-lo], a.lyy[lo:hi])
+	copy(last[:hi-lo], a.ybuf[0][lo:hi])
+}
+
 // last is voxel v's last folded value (offset by its first sample).
 func (a *Accumulator) last(v int) float64 { return a.ybuf[0][v] }
 

@@ -344,6 +344,36 @@ func (h *Header) Scaling() (slope, inter float64) {
 	return s, t
 }
 
+// FiniteValues reports whether every value the data can hold decodes to a
+// finite float32: true for integer datatypes whose largest magnitude, scaled,
+// stays below the float32 range; false for floating-point data (which may hold
+// NaN or ±Inf). A reader of an always-finite run can skip checking values.
+func (h *Header) FiniteValues() bool {
+	var big float64
+	switch h.Datatype {
+	case Uint8:
+		big = math.MaxUint8
+	case Int8:
+		big = -math.MinInt8
+	case Int16:
+		big = -math.MinInt16
+	case Uint16:
+		big = math.MaxUint16
+	case Int32:
+		big = -math.MinInt32
+	case Uint32:
+		big = math.MaxUint32
+	case Int64:
+		big = -math.MinInt64
+	case Uint64:
+		big = math.MaxUint64
+	default:
+		return false
+	}
+	slope, inter := h.Scaling()
+	return big*math.Abs(slope)+math.Abs(inter) < math.MaxFloat32/2
+}
+
 // spaceScale returns the factor from the header's space unit to mm
 // (unit 0, unknown, is taken as mm).
 func spaceScale(units uint8) float64 {

@@ -805,3 +805,26 @@ func TestSniffAtPosition(t *testing.T) {
 		}
 	}
 }
+
+// TestFiniteValues: integer data scaled within the float32 range can never
+// decode to NaN or ±Inf; floating-point data can (IEEE 754, common practice).
+func TestFiniteValues(t *testing.T) {
+	for _, tc := range []struct {
+		dt           Datatype
+		slope, inter float64
+		want         bool
+	}{
+		{Int16, 0, 0, true},     // unscaled
+		{Uint8, 2, -5, true},    // scaled, small
+		{Int16, 1e30, 0, true},  // 32768e30 = 3.3e34 < 1.7e38
+		{Int16, 1e35, 0, false}, // 3.3e39 overflows float32
+		{Uint64, 1, 0, true},    // 1.8e19
+		{Float32, 0, 0, false},
+		{Float64, 1, 0, false},
+	} {
+		h := &Header{Datatype: tc.dt, SclSlope: tc.slope, SclInter: tc.inter}
+		if got := h.FiniteValues(); got != tc.want {
+			t.Errorf("%s slope %g inter %g: FiniteValues %v, want %v", tc.dt, tc.slope, tc.inter, got, tc.want)
+		}
+	}
+}

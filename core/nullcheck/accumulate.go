@@ -43,6 +43,18 @@ type Accumulator struct {
 
 	x    *mat.Dense // real design
 	sums designSums
+	real RealSums // when set, the real design's sums come from here (s64, syy, lyy, prev unused)
+}
+
+// RealSums gives the real design's per-voxel sums when another accumulator of the same pass
+// already gathers them (package glm's does), so that they are not summed twice. Voxels are
+// indices lo..hi−1 into the same voxel list; every series is offset by its first sample.
+type RealSums interface {
+	// DesignSums writes S_j = Σ_t x_tj y_t into s and C_j = Σ_t y_t (x_{t−1,j} + x_{t+1,j})
+	// (x_0 = x_{n+1} = 0) into c, for real design column j.
+	DesignSums(j, lo, hi int, s, c []float64)
+	// SeriesSums writes Σ_t y_t², Σ_{t≥2} y_t y_{t−1} and the last sample y_n.
+	SeriesSums(lo, hi int, syy, lyy, last []float64)
 }
 
 // Bytes returns the memory an accumulator for these designs over the given number of
@@ -57,6 +69,16 @@ func Bytes(d *Designs, p, voxels int, whiten bool) int64 {
 	return per * int64(voxels)
 }
 
+// SharedBytes is Bytes for an accumulator made by NewSharedAccumulator.
+func SharedBytes(d *Designs, voxels int, whiten bool) int64 {
+	q := int64(len(d.Columns))
+	sets := int64(1)
+	if whiten {
+		sets = 2
+	}
+	return (4*sets*int64(d.K)*q + 8 + block*4) * int64(voxels)
+}
+
 // NewAccumulator prepares the sums of the chance designs d (drawn from the real design x,
 // volumes × p) over the in-mask voxels (ascending linear indices into a grid of dims).
 // It panics on a broken contract (lengths that do not match).
@@ -64,6 +86,20 @@ func Bytes(d *Designs, p, voxels int, whiten bool) int64 {
 // With whiten false (ordinary least squares) only the S sums are kept: Solve must then be
 // given no ρ. That halves the cost of the pass.
 func NewAccumulator(d *Designs, x *mat.Dense, dims [3]int, voxels []int32, whiten bool) *Accumulator {
+	return newAccumulator(d, x, dims, voxels, whiten, nil)
+}
+
+// NewSharedAccumulator is NewAccumulator for a pass in which real (package glm's accumulator
+// over the same voxels and design x) already gathers the real design's sums: this one then
+// sums only the chance designs' columns and reads the rest from real in Solve.
+func NewSharedAccumulator(d *Designs, x *mat.Dense, dims [3]int, voxels []int32, whiten bool, real RealSums) *Accumulator {
+	if real == nil {
+		panic("nullcheck: nil RealSums")
+	}
+	return newAccumulator(d, x, dims, voxels, whiten, real)
+}
+
+func newAccumulator(d *Designs, x *mat.Dense, dims [3]int, voxels []int32, whiten bool, real RealSums) *Accumulator {
 	n, p := x.Dims()
 	q := len(d.Columns)
 	if len(d.X) != d.K {
@@ -76,7 +112,7 @@ func NewAccumulator(d *Designs, x *mat.Dense, dims [3]int, voxels []int32, white
 		}
 	}
 	m := len(voxels)
-	a := &Accumulator{d: d, n: n, m: m, p: p, q: q, nulls: d.K * q, dims: dims, voxels: voxels, x: x, whiten: whiten}
+	a := &Accumulator{d: d, n: n, m: m, p: p, q: q, nulls: d.K * q, dims: dims, voxels: voxels, x: x, whiten: whiten, real: real}
 	sets := 1 // S rows only
 	if whiten {
 		sets = 2 // S rows, then C rows
@@ -94,6 +130,13 @@ func NewAccumulator(d *Designs, x *mat.Dense, dims [3]int, voxels []int32, white
 			}
 		}
 	}
+	a.s32 = make([]float32, sets*a.nulls*m)
+	a.y1 = make([]float64, m)
+	a.yb32 = make([]float32, block*m)
+	a.sums = newDesignSums(d, x)
+	if real != nil {
+		return a
+	}
 	a.coef64 = make([][]float64, sets*p)
 	for j := range p {
 		s, c := shiftRows(x, j)
@@ -102,15 +145,11 @@ func NewAccumulator(d *Designs, x *mat.Dense, dims [3]int, voxels []int32, white
 			a.coef64[p+j] = c
 		}
 	}
-	a.s32 = make([]float32, sets*a.nulls*m)
 	a.s64 = make([]float64, sets*p*m)
 	a.syy = make([]float64, m)
 	a.lyy = make([]float64, m)
 	a.prev = make([]float64, m)
-	a.y1 = make([]float64, m)
-	a.yb32 = make([]float32, block*m)
 	a.yb64 = make([]float64, block*m)
-	a.sums = newDesignSums(d, x)
 	return a
 }
 
@@ -154,13 +193,30 @@ func (a *Accumulator) AddVolume(vol []float32) {
 		return
 	}
 	slot := a.nb
-	yb32, yb64 := a.yb32[:block*a.m], a.yb64[:block*a.m]
-	syy, lyy, prev, y1 := a.syy[:a.m], a.lyy[:a.m], a.prev[:a.m], a.y1[:a.m]
+	y1 := a.y1[:a.m]
 	if t == 0 {
 		for k, v := range a.voxels {
 			y1[k] = float64(vol[v])
 		}
 	}
+	if a.real != nil {
+		yb32 := a.yb32[:block*a.m]
+		for k, v := range a.voxels {
+			yb32[block*k+slot] = float32(float64(vol[v]) - y1[k])
+		}
+	} else {
+		a.addSeries(vol, slot)
+	}
+	a.nb++
+	if a.nb == block || t == a.n-1 {
+		a.flush()
+	}
+}
+
+// addSeries buffers volume slot of the block and sums the real design's series terms.
+func (a *Accumulator) addSeries(vol []float32, slot int) {
+	yb32, yb64 := a.yb32[:block*a.m], a.yb64[:block*a.m]
+	syy, lyy, prev, y1 := a.syy[:a.m], a.lyy[:a.m], a.prev[:a.m], a.y1[:a.m]
 	for k, v := range a.voxels {
 		y := float64(vol[v]) - y1[k]
 		syy[k] += y * y
@@ -168,10 +224,6 @@ func (a *Accumulator) AddVolume(vol []float32) {
 		prev[k] = y
 		yb32[block*k+slot] = float32(y)
 		yb64[block*k+slot] = y
-	}
-	a.nb++
-	if a.nb == block || t == a.n-1 {
-		a.flush()
 	}
 }
 
@@ -190,7 +242,9 @@ func (a *Accumulator) flush() {
 	for v0 := 0; v0 < m; v0 += flushChunk {
 		v1 := min(v0+flushChunk, m)
 		addRows(a.s32, m, v0, v1, a.yb32[block*v0:block*v1], c32)
-		addRows(a.s64, m, v0, v1, a.yb64[block*v0:block*v1], c64)
+		if a.real == nil {
+			addRows(a.s64, m, v0, v1, a.yb64[block*v0:block*v1], c64)
+		}
 	}
 	a.t0 += nb
 	a.nb = 0

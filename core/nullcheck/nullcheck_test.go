@@ -10,6 +10,8 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 
+	"winnow/core/glm"
+
 	"winnow/core/design"
 )
 
@@ -331,6 +333,11 @@ func TestSolveMatchesExplicitGLS(t *testing.T) {
 	}
 	acc := NewAccumulator(d, real.X, dims, voxels, true)
 	ols := NewAccumulator(d, real.X, dims, voxels, false)
+	// The same chance designs with the real design's sums read from package glm's
+	// accumulator of the same pass.
+	g := glm.NewAccumulator(real.X, dims, voxels)
+	shared := NewSharedAccumulator(d, real.X, dims, voxels, true, g)
+	sharedOLS := NewSharedAccumulator(d, real.X, dims, voxels, false, g)
 	vol := make([]float32, dims[0])
 	yr := make([][]float64, m) // the float32 volumes as the accumulators saw them
 	for v := range yr {
@@ -343,6 +350,9 @@ func TestSolveMatchesExplicitGLS(t *testing.T) {
 		}
 		acc.AddVolume(vol)
 		ols.AddVolume(vol)
+		g.AddVolume(vol)
+		shared.AddVolume(vol)
+		sharedOLS.AddVolume(vol)
 	}
 	valid := make([]bool, m)
 	for v := range valid {
@@ -353,7 +363,8 @@ func TestSolveMatchesExplicitGLS(t *testing.T) {
 		name string
 		acc  *Accumulator
 		rho  []float64
-	}{{"AR(1) at the given ρ", acc, rho}, {"AR(1) sums, ρ = 0", acc, nil}, {"OLS sums", ols, nil}}
+	}{{"AR(1) at the given ρ", acc, rho}, {"AR(1) sums, ρ = 0", acc, nil}, {"OLS sums", ols, nil},
+		{"AR(1), real sums from glm", shared, rho}, {"OLS, real sums from glm", sharedOLS, nil}}
 	for _, tc := range cases {
 		r := tc.rho
 		worst := 0.0

@@ -204,6 +204,8 @@ type workspace struct {
 	l          []float64 // p×p Cholesky factor of the real block (lower)
 	r          []float64 // p: L⁻¹ X̃'ỹ
 	rr, yy, yn []float64
+	syy, lyy   []float64 // the chunk's Σy² and lag-1 sums
+	rs, rc     []float64 // one real column's S and C sums at the chunk's voxels
 	wm         []float64 // q×p: row i = L⁻¹ (X̃'x̃_Ni)
 	s          []float64 // q×q Schur complement, then its factor M
 	z          []float64 // q: M⁻¹ u
@@ -218,7 +220,7 @@ func newWorkspace(p, q, nb int) *workspace {
 	f := func(n int) []float64 { return make([]float64, n*nb) }
 	return &workspace{p: p, q: q, nb: nb,
 		ca: f(1), cb: f(1), cc: f(1), bad: make([]bool, nb), nbad: make([]bool, nb),
-		l: f(p * p), r: f(p), rr: f(1), yy: f(1), yn: f(1),
+		l: f(p * p), r: f(p), rr: f(1), yy: f(1), yn: f(1), syy: f(1), lyy: f(1), rs: f(1), rc: f(1),
 		wm: f(q * p), s: f(q * q), z: f(q), s2: f(1),
 		h: f(q * q), hh: f(q * q), hz: f(q), tmp: f(1)}
 }
@@ -241,8 +243,29 @@ func (w *workspace) setChunk(a *Accumulator, k0, k1 int, rho []float64, valid []
 			r = 0
 		}
 		w.ca[v], w.cb[v], w.cc[v] = 1+r*r, r, r*r
-		w.yn[v] = a.prev[k0+v]
 	}
+	if a.real != nil {
+		a.real.SeriesSums(k0, k1, w.syy, w.lyy, w.yn)
+		return
+	}
+	copy(w.yn, a.prev[k0:k1])
+	copy(w.syy, a.syy[k0:k1])
+	copy(w.lyy, a.lyy[k0:k1])
+}
+
+// realSums returns real design column j's S and C sums at the chunk's voxels.
+func (a *Accumulator) realSums(w *workspace, j int) (sj, cj []float64) {
+	k0, nb, m := w.k0, w.nb, a.m
+	if a.real != nil {
+		sj, cj = w.rs[:nb], w.rc[:nb]
+		a.real.DesignSums(j, k0, k0+nb, sj, cj)
+		return sj, cj
+	}
+	sj = a.s64[j*m+k0 : j*m+k0+nb]
+	if a.whiten {
+		cj = a.s64[(a.p+j)*m+k0 : (a.p+j)*m+k0+nb]
+	}
+	return sj, cj
 }
 
 // ent returns entry e of an SoA matrix.
@@ -331,7 +354,7 @@ func (w *workspace) dotSoA(dst, x, y []float64, n int) {
 // right-hand side: G_XX = (1+ρ²)Sxx − ρP − ρ²E = LL', r = L⁻¹ X̃'ỹ with
 // X̃'ỹ = (1+ρ²)S − ρC − ρ²x_n y_n, and ỹ'ỹ = (1+ρ²)Syy − 2ρLyy − ρ²y_n².
 func (a *Accumulator) chunkReal(w *workspace) {
-	p, m, nb, k0 := a.p, a.m, w.nb, w.k0
+	p, nb := a.p, w.nb
 	s := &a.sums
 	for i := range p {
 		for j := 0; j <= i; j++ {
@@ -342,13 +365,13 @@ func (a *Accumulator) chunkReal(w *workspace) {
 	w.cholSoA(w.l, p, w.bad)
 	for j := range p {
 		rj := w.ent(w.r, j)
-		sj := a.s64[j*m+k0 : j*m+k0+nb]
+		sj, cj := a.realSums(w, j)
 		xn := s.xnX[j]
 		if !a.whiten {
 			copy(rj, sj) // ρ = 0
 			continue
 		}
-		cj := a.s64[(p+j)*m+k0 : (p+j)*m+k0+nb][:len(rj)]
+		cj = cj[:len(rj)]
 		sj = sj[:len(rj)]
 		ca, cb, cc, yn := w.ca[:len(rj)], w.cb[:len(rj)], w.cc[:len(rj)], w.yn[:len(rj)]
 		for v := range rj {
@@ -357,7 +380,7 @@ func (a *Accumulator) chunkReal(w *workspace) {
 	}
 	w.forwardSoA(w.l, p, w.r)
 	w.dotSoA(w.rr, w.r, w.r, p)
-	syy, lyy := a.syy[k0:k0+nb], a.lyy[k0:k0+nb]
+	syy, lyy := w.syy[:nb], w.lyy[:nb]
 	for v := range w.yy {
 		w.yy[v] = w.ca[v]*syy[v] - 2*w.cb[v]*lyy[v] - w.cc[v]*w.yn[v]*w.yn[v]
 	}
