@@ -3,6 +3,8 @@ package glm
 import (
 	"fmt"
 	"math"
+	"runtime"
+	"sync"
 
 	"winnow/core/smooth"
 )
@@ -257,39 +259,42 @@ func (a *Accumulator) Fit(opt Options) (*Fit, error) {
 	f.beta = make([]float64, nv*p)
 	f.first = append([]float64(nil), a.y1...)
 
-	bs := newBlockSolver(d)
 	invN := 1 / float64(a.n)
-	use := make([]bool, blockVoxels)
-	bsum := newBlockSums()
-	for lo := 0; lo < nv; lo += blockVoxels {
-		hi := min(lo+blockVoxels, nv)
-		bs.gatherSums(a, lo, hi-lo, bsum)
-		for i := range use {
-			use[i] = false
-			if v := lo + i; v < hi {
-				f.Mean[v] = a.y1[v] + a.sy[v]*invN
-				tiny := 1e-24 * float64(a.n) * (1 + a.y1[v]*a.y1[v])
-				use[i] = bsum.chk[i] == 0 && bsum.off[i] > tiny
-			}
-		}
-		copy(bs.yy, bsum.syy)
-		copy(bs.ssq, bsum.lyy)
-		bs.ols()
-		for v := lo; v < hi; v++ {
-			i := v - lo
-			if a0, a1 := bs.yy[i], bs.ssq[i]; use[i] && a0 > 1e-12*bsum.syy[i] && finite(a0) && finite(a1) {
-				r := d.biasReduced(a0, a1)
-				if math.IsNaN(r) {
-					r = 0
+	excluded := make([]int, maxWorkers(nv))
+	parallelRanges(nv, func(w, lo0, hi0 int) {
+		bs := newBlockSolver(d)
+		use := make([]bool, blockVoxels)
+		bsum := newBlockSums()
+		for lo := lo0; lo < hi0; lo += blockVoxels {
+			hi := min(lo+blockVoxels, hi0)
+			bs.gatherSums(a, lo, hi-lo, bsum)
+			for i := range use {
+				use[i] = false
+				if v := lo + i; v < hi {
+					f.Mean[v] = a.y1[v] + a.sy[v]*invN
+					tiny := 1e-24 * float64(a.n) * (1 + a.y1[v]*a.y1[v])
+					use[i] = bsum.chk[i] == 0 && bsum.off[i] > tiny
 				}
-				f.RhoVoxel[v] = min(max(r, RhoMin), RhoMax)
-				f.Valid[v] = true
-				continue
 			}
-			f.RhoVoxel[v] = math.NaN()
-			f.Excluded++
+			copy(bs.yy, bsum.syy)
+			copy(bs.ssq, bsum.lyy)
+			bs.ols()
+			for v := lo; v < hi; v++ {
+				i := v - lo
+				if a0, a1 := bs.yy[i], bs.ssq[i]; use[i] && a0 > 1e-12*bsum.syy[i] && finite(a0) && finite(a1) {
+					r := d.biasReduced(a0, a1)
+					if math.IsNaN(r) {
+						r = 0
+					}
+					f.RhoVoxel[v] = min(max(r, RhoMin), RhoMax)
+					f.Valid[v] = true
+					continue
+				}
+				f.RhoVoxel[v] = math.NaN()
+				excluded[w]++
+			}
 		}
-	}
+	})
 
 	switch {
 	case noise == NoiseOLS:
@@ -307,63 +312,20 @@ func (a *Accumulator) Fit(opt Options) (*Fit, error) {
 	for i, c := range cons {
 		f.Stats[i] = c.newStat(nv, f.DF)
 	}
-	sc := newScratch(p)
-	braw := make([]float64, p)
-	rho := make([]float64, blockVoxels)
-	for lo := 0; lo < nv; lo += blockVoxels {
-		hi := min(lo+blockVoxels, nv)
-		bs.gatherSums(a, lo, hi-lo, bsum)
-		for i := range use {
-			v := lo + i
-			use[i] = v < hi && f.Valid[v]
-			if use[i] {
-				rho[i] = f.Rho[v]
-			}
+	parallelRanges(nv, func(w, lo0, hi0 int) {
+		bs := newBlockSolver(d)
+		use := make([]bool, blockVoxels)
+		bsum := newBlockSums()
+		sc := newScratch(p)
+		braw := make([]float64, p)
+		rho := make([]float64, blockVoxels)
+		for lo := lo0; lo < hi0; lo += blockVoxels {
+			hi := min(lo+blockVoxels, hi0)
+			f.glsBlock(a, bs, bsum, cons, use, rho, sc, braw, lo, hi, &excluded[w])
 		}
-		bs.setGLS(bsum, rho, use)
-		bs.solve()
-		for v := lo; v < hi; v++ {
-			i := v - lo
-			bv := f.beta[v*p : (v+1)*p]
-			if f.Valid[v] {
-				if rss := bs.yy[i]; !bs.bad[i] && rss > 0 && finite(rss) {
-					f.Sigma2[v] = rss / f.DF
-					for j := range bv {
-						bv[j] = bs.beta[j*blockVoxels+i]
-					}
-					continue
-				}
-				f.Valid[v] = false
-				f.Excluded++
-			}
-			f.Rho[v], f.RhoVoxel[v], f.Sigma2[v] = math.NaN(), math.NaN(), math.NaN()
-			for j := range bv {
-				bv[j] = math.NaN()
-			}
-			for _, st := range f.Stats {
-				st.setNaN(v)
-			}
-		}
-		for k, c := range cons {
-			st := f.Stats[k]
-			if !c.f {
-				bs.tSE(c.basis[0])
-			}
-			for v := lo; v < hi; v++ {
-				if !f.Valid[v] {
-					continue
-				}
-				i := v - lo
-				f.rawBeta(v, braw)
-				if c.f {
-					c.eval(st, v, bs.factor(i), p, braw, f.Sigma2[v], sc)
-					continue
-				}
-				eff := dot(c.basis[0], braw)
-				se := math.Sqrt(f.Sigma2[v] * bs.ssq[i])
-				st.Effect[v], st.SE[v], st.Stat[v] = eff, se, eff/se
-			}
-		}
+	})
+	for _, n := range excluded {
+		f.Excluded += n
 	}
 	if f.Excluded > 0 {
 		f.Warnings = append(f.Warnings, fmt.Sprintf(
@@ -372,6 +334,92 @@ func (a *Accumulator) Fit(opt Options) (*Fit, error) {
 	}
 	f.FWHMVoxels = a.smoothness(f)
 	return f, nil
+}
+
+// glsBlock fits voxels lo..hi−1 (one block) by Prais–Winsten GLS at their ρ and evaluates the
+// contrasts, counting newly excluded voxels in excluded.
+func (f *Fit) glsBlock(a *Accumulator, bs *blockSolver, bsum *blockSums, cons []*prepared, use []bool, rho []float64, sc *scratch, braw []float64, lo, hi int, excluded *int) {
+	p := f.d.p
+	bs.gatherSums(a, lo, hi-lo, bsum)
+	for i := range use {
+		v := lo + i
+		use[i] = v < hi && f.Valid[v]
+		if use[i] {
+			rho[i] = f.Rho[v]
+		}
+	}
+	bs.setGLS(bsum, rho, use)
+	bs.solve()
+	for v := lo; v < hi; v++ {
+		i := v - lo
+		bv := f.beta[v*p : (v+1)*p]
+		if f.Valid[v] {
+			if rss := bs.yy[i]; !bs.bad[i] && rss > 0 && finite(rss) {
+				f.Sigma2[v] = rss / f.DF
+				for j := range bv {
+					bv[j] = bs.beta[j*blockVoxels+i]
+				}
+				continue
+			}
+			f.Valid[v] = false
+			*excluded++
+		}
+		f.Rho[v], f.RhoVoxel[v], f.Sigma2[v] = math.NaN(), math.NaN(), math.NaN()
+		for j := range bv {
+			bv[j] = math.NaN()
+		}
+		for _, st := range f.Stats {
+			st.setNaN(v)
+		}
+	}
+	for k, c := range cons {
+		st := f.Stats[k]
+		if !c.f {
+			bs.tSE(c.basis[0])
+		}
+		for v := lo; v < hi; v++ {
+			if !f.Valid[v] {
+				continue
+			}
+			i := v - lo
+			f.rawBeta(v, braw)
+			if c.f {
+				c.eval(st, v, bs.factor(i), p, braw, f.Sigma2[v], sc)
+				continue
+			}
+			eff := dot(c.basis[0], braw)
+			se := math.Sqrt(f.Sigma2[v] * bs.ssq[i])
+			st.Effect[v], st.SE[v], st.Stat[v] = eff, se, eff/se
+		}
+	}
+}
+
+// parallelChunk is the number of voxels below which Fit stays on one goroutine, and the
+// granularity of its split (whole blocks).
+const parallelChunk = 64 * blockVoxels
+
+// maxWorkers is the number of goroutines parallelRanges uses for n voxels.
+func maxWorkers(n int) int {
+	return max(1, min(runtime.GOMAXPROCS(0), (n+parallelChunk-1)/parallelChunk))
+}
+
+// parallelRanges splits the voxels 0..n−1 into contiguous ranges of whole blocks, one per
+// goroutine (maxWorkers of them), and runs body(worker, lo, hi) on each. Every voxel's
+// result depends on its own sums only, so the output is the same for any split.
+func parallelRanges(n int, body func(w, lo, hi int)) {
+	k := maxWorkers(n)
+	if k == 1 {
+		body(0, 0, n)
+		return
+	}
+	blocks := (n + blockVoxels - 1) / blockVoxels
+	var wg sync.WaitGroup
+	for w := range k {
+		lo := blocks * w / k * blockVoxels
+		hi := min(blocks*(w+1)/k*blockVoxels, n)
+		wg.Go(func() { body(w, lo, hi) })
+	}
+	wg.Wait()
 }
 
 // smoothRho replaces Rho by the ρ map smoothed within the valid voxels.
