@@ -74,6 +74,16 @@ type Designs struct {
 	Placement  Placement
 	Span       [2]float64 // start of the first real event, end of the last, seconds
 	MinSpacing float64    // seconds between one event's end and the next one's start, ≥ 0
+
+	// Reference is set when the events tile their span with no gap and every condition is
+	// modelled: each chance design is then a relabelling of the real events, the union of
+	// its events is the real union, and its columns of each basis (canonical, temporal and
+	// dispersion derivatives) sum to the real ones. The reference condition's columns are
+	// left out of the chance model (the real design carries their sum), so the chance
+	// coefficients are differences from it, and only contrasts whose weights over the
+	// conditions sum to zero per basis are testable (Contrast).
+	Reference string
+	dropped   []int // real column indices of the reference condition's left-out columns
 }
 
 // conditionKind reports whether a design column models a condition (and so has a null
@@ -169,6 +179,9 @@ func Draw(conds []design.Condition, real *design.Design, opt Options) (*Designs,
 	if free < 0 {
 		d.Placement = PlacementFree
 	}
+	if free <= 1e-9*math.Max(1, d.Span[1]-d.Span[0]) && d.Placement == PlacementSpaced {
+		d.dropReference(conds, real, opt.Conditions)
+	}
 
 	rng := rand.New(rand.NewPCG(cmp.Or(opt.Seed, DefaultSeed), 0x636865636b))
 	bopt := design.Options{Volumes: n, TR: opt.TR, SampleFraction: opt.SampleFraction, HRFDerivs: opt.HRFDerivs, Modulate: opt.Modulate}
@@ -224,6 +237,40 @@ func Draw(conds []design.Condition, real *design.Design, opt Options) (*Designs,
 		d.Events = append(d.Events, nc)
 	}
 	return d, nil
+}
+
+// dropReference handles events that tile their span: when every condition with events is
+// modelled, the last one becomes the reference and its unmodulated columns leave the
+// chance model (see Designs.Reference).
+func (d *Designs) dropReference(conds []design.Condition, real *design.Design, modelled []string) {
+	last := ""
+	for _, c := range conds {
+		if len(c.Onsets) == 0 {
+			continue
+		}
+		if modelled != nil && !slices.Contains(modelled, c.Name) {
+			return // an unmodelled condition's events vary the union: no constraint
+		}
+		last = c.Name
+	}
+	if last == "" {
+		return
+	}
+	var cols []string
+	var idx []int
+	for k, name := range d.Columns {
+		c := real.Columns[d.Real[k]]
+		if c.Condition == last && c.Kind != design.ColumnModulator {
+			d.dropped = append(d.dropped, d.Real[k])
+			continue
+		}
+		cols, idx = append(cols, name), append(idx, d.Real[k])
+	}
+	if len(cols) == 0 {
+		d.dropped = nil
+		return // a single condition: nothing to compare it with (the draw reports it)
+	}
+	d.Columns, d.Real, d.Reference = cols, idx, last
 }
 
 // build makes the null columns of one draw with design.Build (so the kernel, its
@@ -284,15 +331,35 @@ func (d *Designs) build(nc []design.Condition, bopt design.Options, xr *mat.Dens
 // the null columns, by column name. A contrast that puts weight on a column that does not
 // model a condition (a confound, drift, the intercept) has no chance counterpart and is
 // refused.
+//
+// With a reference condition (Designs.Reference) the chance coefficients are differences
+// from the reference, so a row must weigh the conditions' columns of each basis with
+// weights that sum to zero (a comparison such as a − b); its weights on the other
+// conditions then carry over unchanged.
 func (d *Designs) Contrast(name string, weights [][]float64, real []design.Column) ([][]float64, error) {
 	out := make([][]float64, len(weights))
 	for i, row := range weights {
 		if len(row) != len(real) {
 			return nil, fmt.Errorf("null check: contrast %q row %d has %d weights, want %d (one per design column)", name, i+1, len(row), len(real))
 		}
+		if d.Reference != "" {
+			sums := map[design.ColumnKind]float64{}
+			scale := map[design.ColumnKind]float64{}
+			for j, w := range row {
+				if c := real[j]; c.Condition != "" && c.Kind != design.ColumnModulator {
+					sums[c.Kind] += w
+					scale[c.Kind] += math.Abs(w)
+				}
+			}
+			for kind, sum := range sums {
+				if math.Abs(sum) > 1e-9*scale[kind] {
+					return nil, fmt.Errorf("null check: the events tile the run without gaps, so a chance design is a relabelling of the real events and can only compare conditions; contrast %q has %s weights summing to %g; want weights that sum to zero, such as a - b", name, kind, sum)
+				}
+			}
+		}
 		out[i] = make([]float64, len(d.Columns))
 		for j, w := range row {
-			if w == 0 {
+			if w == 0 || slices.Contains(d.dropped, j) {
 				continue
 			}
 			k := slices.Index(d.Real, j)

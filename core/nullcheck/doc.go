@@ -20,7 +20,14 @@
 //     This is the uniform distribution over non-overlapping layouts with spacing at least g
 //     for each order. A fully packed design (F = 0) reduces to shuffling the order of the
 //     events, i.e. block-order shuffling for block designs; the same rule therefore covers
-//     event-related and block designs;
+//     event-related and block designs. When such packed events tile their span and every
+//     condition is modelled, each chance design is a relabelling of the real events, so
+//     its columns of each basis sum to the real ones and [null | real] loses a rank: the
+//     last condition then becomes the reference, its canonical and derivative columns
+//     leave the chance model (the real design carries their sum), the remaining chance
+//     coefficients are differences from the reference (substitute z_ref = Σ x − Σ z), and
+//     only contrasts whose condition weights sum to zero per basis (comparisons such as
+//     a − b) are testable, with their weights on the other conditions unchanged;
 //   - independent onsets (only when the real events overlap so much that F < 0 even with
 //     g = 0): each onset is uniform on [S, E − d].
 //

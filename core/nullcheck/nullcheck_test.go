@@ -171,10 +171,25 @@ func TestDrawDerivsAndCollinear(t *testing.T) {
 	}
 	real, opt = buildReal(t, packed, n, false)
 	opt.Designs = 2
-	_, err = Draw(packed, real, opt)
+	d, err = Draw(packed, real, opt)
+	if err != nil {
+		t.Fatalf("packed design: %v", err)
+	}
+	if d.Reference != "b" || !slices.Equal(d.Columns, []string{"a"}) {
+		t.Fatalf("packed design: reference %q, columns %v; want b, [a] (relabellings, see tiled_test.go)", d.Reference, d.Columns)
+	}
+	// One condition filling its span: every chance layout is the real one.
+	single := []design.Condition{{Name: "a"}}
+	for i := range 5 {
+		single[0].Onsets = append(single[0].Onsets, float64(40*i))
+		single[0].Durations = append(single[0].Durations, 40)
+	}
+	real, opt = buildReal(t, single, n, false)
+	opt.Designs = 2
+	_, err = Draw(single, real, opt)
 	t.Log(err)
 	if err == nil || !strings.Contains(err.Error(), "not collinear with the real design") {
-		t.Fatalf("packed design: err %v, want the collinearity message", err)
+		t.Fatalf("single packed condition: err %v, want the collinearity message", err)
 	}
 }
 
