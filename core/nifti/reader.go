@@ -226,6 +226,45 @@ func (r *Reader) ReadVolume(dst []float32) error {
 	return nil
 }
 
+// VolumeBytes is the number of stored bytes of one volume (ReadVolumeRaw).
+func (r *Reader) VolumeBytes() int { return len(r.buf) }
+
+// ReadVolumeRaw reads the next volume's stored bytes into raw (VolumeBytes long) without
+// decoding them; DecodeVolume converts them. Splitting the two lets a caller decompress in
+// one goroutine and decode in another. Errors and the end of the stream are as ReadVolume's.
+func (r *Reader) ReadVolumeRaw(raw []byte) error {
+	if len(raw) != len(r.buf) {
+		panic(fmt.Sprintf("nifti: ReadVolumeRaw: raw has %d bytes, want %d", len(raw), len(r.buf)))
+	}
+	if r.err != nil {
+		return r.err
+	}
+	if r.next == r.nvol {
+		r.err = r.finish()
+		return r.err
+	}
+	if _, err := io.ReadFull(r.src, raw); err != nil {
+		if err == io.EOF || err == io.ErrUnexpectedEOF {
+			r.err = &TruncatedError{Volume: r.next + 1, Volumes: r.nvol, Err: io.ErrUnexpectedEOF}
+		} else {
+			r.err = fmt.Errorf("nifti: volume %d of %d: %w", r.next+1, r.nvol, err)
+		}
+		return r.err
+	}
+	r.next++
+	return nil
+}
+
+// DecodeVolume converts one volume's stored bytes (from ReadVolumeRaw) to scaled float32
+// values, as ReadVolume does. It only reads the header's settings, so it may run in another
+// goroutine than the reads.
+func (r *Reader) DecodeVolume(dst []float32, raw []byte) {
+	if len(dst) != r.vvox || len(raw) != len(r.buf) {
+		panic(fmt.Sprintf("nifti: DecodeVolume: %d values from %d bytes, want %d from %d", len(dst), len(raw), r.vvox, len(r.buf)))
+	}
+	decode(dst, raw, r.hdr.Datatype, r.big, r.slope, r.inter, r.scaled)
+}
+
 // finish is called after the last volume: it reads a gzip stream to its end
 // so the checksum is verified, and returns io.EOF when all is well. At most maxTrailing decompressed bytes past the image data are read.
 func (r *Reader) finish() error {
