@@ -213,6 +213,12 @@ func (a *Accumulator) Fit(opt Options) (*Fit, error) {
 	if a.added != a.n {
 		return nil, fmt.Errorf("glm: %d volumes added, want %d (design rows)", a.added, a.n)
 	}
+	// Every volume is folded in: the pending-volume buffers (all but the last volume,
+	// ybuf[0]) are not needed any more, and their memory can go before the fit's own.
+	for b := 1; b < stride; b++ {
+		a.ybuf[b] = nil
+	}
+	a.win = nil
 	d, err := newDesign(a.x, a.n, a.p)
 	if err != nil {
 		return nil, err

@@ -15,6 +15,6 @@ func main() {
 	// The fit's large allocations (per-voxel sums, maps) live until the end,
 	// so a lower GC target keeps the peak close to what is live instead of
 	// twice it, at little cost in time.
-	debug.SetGCPercent(25)
+	debug.SetGCPercent(15)
 	os.Exit(run(os.Args[1:], os.Stdout, os.Stderr))
 }
