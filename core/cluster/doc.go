@@ -45,10 +45,14 @@
 // near-linear union-find. Before the sweep, one pass in index order finds for every voxel which
 // of its already-swept neighbours are joined to each other inside its 3×3×3 cube (through swept
 // cells); such neighbours are already in one component, so the sweep looks up one of each
-// group, usually a single find per voxel (derived here). While the maps have fewer than 2^20
-// voxels above zero, the three cells of a cube row are compared with the voxel's sweep position
-// in one 64-bit subtraction on 21-bit lanes (a guard bit per lane keeps the lanes apart), so a
-// voxel's mask takes nine subtractions; larger maps compare one cell at a time.
+// group, usually a single find per voxel (derived here). Under 26-connectivity most voxels are
+// settled without growing groups: two face centres of the cube are neighbours unless opposite,
+// so when the swept face centres are not just an opposite pair and every swept neighbour
+// touches one of them, there is one group (derived here). While float32 maps have fewer than
+// 2^20 voxels above zero, that pass visits the voxels above zero alone and the three cells of a
+// cube row are compared with the voxel's sweep position in one 64-bit subtraction on 21-bit
+// lanes (a guard bit per lane keeps the lanes apart), so a voxel's mask takes nine
+// subtractions; other maps compare one cell at a time.
 //
 // Permutation steps need only the largest TFCE ([TFCEMax], [TFCEMaxTail]). It lies at a voxel
 // swept before all of its neighbours (a local maximum): a voxel v swept after a neighbour u
@@ -68,7 +72,7 @@
 // # Resource limits
 //
 // Grids are limited to 2^30 voxels (indices are int32). A [TFCEWorkspace] keeps 12 bytes per
-// voxel of the grid padded by one voxel on each side, plus 60 bytes per voxel above zero (68
+// voxel of the grid padded by one voxel on each side, plus 64 bytes per voxel above zero (68
 // for float64 maps), sized for the first map, with a quarter to spare when a later map needs
 // more.
 // [TFCEStepped] labels the whole grid once per level, ⌊max/dh⌋ times.

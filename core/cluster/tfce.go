@@ -57,14 +57,15 @@ type TFCEWorkspace struct {
 	cellNbr [27]uint32 // cube cells that are cell c or its neighbours under conn
 
 	node []int32  // padded grid → sweep position, noNode when not swept
-	trip []uint64 // padded grid: lanes of node[g], node[g+1], node[g+2] (see links)
-	// laneLimit is the most swept voxels for the packed comparison in links: laneMax (tests
+	trip []uint64 // padded grid: lanes of node[g], node[g+1], node[g+2] (see linksLanes)
+	// laneLimit is the most swept voxels for the packed comparison in linksLanes: laneMax (tests
 	// lower it to check the one-cell-at-a-time path).
 	laneLimit int
 
 	// Per node, in sweep order (decreasing value, then increasing index).
 	keys, keys2   []uint64 // sort keys: ^bits of the positive value, see gather
 	order, order2 []int32  // padded grid index
+	gidx          []int32  // packed maps: padded grid index of each node in index order
 	fh            []float64
 	rep           []int32  // a swept neighbour of each group of swept neighbours, −1 if none
 	extra         []uint64 // further groups (rare): node<<32 | neighbour, sorted
@@ -158,6 +159,22 @@ func TFCEMaxTail[T Float](ws *TFCEWorkspace, stat []T, E, H float64, tail Tail) 
 	panic(fmt.Sprintf("cluster: tail %d, want TailPositive, TailNegative or TailSigned", int(tail)))
 }
 
+// TFCEMaxSparse returns TFCEMaxTail(ws, stat, E, H, TailPositive) of the float32 map stat
+// given by its voxels > 0 alone: idx holds their linear indices in increasing order and val
+// their values (every other voxel of stat is ≤ 0 or NaN). A permutation step that produces
+// those voxels directly spares writing and scanning the whole grid.
+func TFCEMaxSparse(ws *TFCEWorkspace, idx []int32, val []float32, E, H float64) float64 {
+	if err := CheckTFCEParams(E, H); err != nil {
+		panic(err.Error())
+	}
+	if len(idx) != len(val) {
+		panic(fmt.Sprintf("cluster: %d sparse voxels but %d values", len(idx), len(val)))
+	}
+	gatherSparse(ws, idx, val)
+	ws.sweepKeys(len(idx), true, E, H, false)
+	return ws.max()
+}
+
 func (ws *TFCEWorkspace) check(n int, E, H float64) {
 	if want := ws.dims[0] * ws.dims[1] * ws.dims[2]; n != want {
 		panic(fmt.Sprintf("cluster: stat has %d voxels, dims %v hold %d", n, ws.dims, want))
@@ -184,19 +201,44 @@ func (ws *TFCEWorkspace) check(n int, E, H float64) {
 // where a path reaches it, in the same arithmetic.
 func sweep[T Float](ws *TFCEWorkspace, stat []T, negate bool, E, H float64, final bool) {
 	n, packed := gather(ws, stat, negate)
+	ws.sweepKeys(n, packed, E, H, final)
+}
+
+// sweepKeys is sweep after gather (n keys, packed for float32 maps).
+func (ws *TFCEWorkspace) sweepKeys(n int, packed bool, E, H float64, final bool) {
 	ws.prepare(n, E)
 	ws.sortNodes(packed)
-	keys, fh, node := ws.keys[:n], ws.fh[:n], ws.node
-	// F(h) = h^(H+1)/(H+1) for every node, with the node map, in one loop.
+	keys, fh := ws.keys[:n], ws.fh[:n]
+	// F(h) = h^(H+1)/(H+1) for every node, with the node map and the packed ranks of
+	// linksLanes, in one loop. linksLanes reads the ranks from the lanes alone, so the node
+	// map (which float32 maps gather without touching) is filled only for links, for emit (a
+	// map is asked for) and for packLanes (H ≠ 2).
 	lanes := packed && n <= ws.laneLimit
+	needNode := !lanes || final || H != 2
+	if packed && needNode {
+		ws.clearNode()
+	}
+	node := ws.node
 	if lanes {
 		ws.resetLanes()
 	}
 	if packed {
 		switch {
+		case !needNode:
+			// The packed ranks of links: cell g is lane 0 of trip[g], lane 1 of trip[g−1]
+			// and lane 2 of trip[g−2] (all lanes start at laneMax).
+			trip := ws.trip
+			for t, k := range keys {
+				g := uint32(k)
+				x := uint64(laneMax ^ t)
+				trip[g] ^= x
+				trip[g-1] ^= x << laneBits
+				trip[g-2] ^= x << (2 * laneBits)
+				h := float64(math.Float32frombits(^uint32(k >> 32)))
+				fh[t] = h * h * h / 3
+			}
 		case lanes && H == 2:
-			// The node map and the packed ranks of links: cell g is lane 0 of trip[g], lane 1
-			// of trip[g−1] and lane 2 of trip[g−2] (all lanes start at laneMax).
+			// The same, with the node map.
 			trip := ws.trip
 			for t, k := range keys {
 				g := uint32(k)
@@ -231,7 +273,11 @@ func sweep[T Float](ws *TFCEWorkspace, stat []T, negate bool, E, H float64, fina
 			node[g] = int32(t)
 		}
 	}
-	ws.links(lanes)
+	if lanes {
+		ws.linksLanes(n)
+	} else {
+		ws.links()
+	}
 	parent, size, w, lastF, rep, extra := ws.parent[:n], ws.size[:n], ws.w[:n], ws.lastF[:n], ws.rep[:n], ws.extra
 	powE := ws.powE
 	sizePow := func(s int32) float64 { return powE[s] }
@@ -325,90 +371,182 @@ func findTFCE(parent []int32, w []float64, x int32) int32 {
 //
 // Cube cell c is (dj+1) + 3(dk+1) + 9(di+1): the nine cube rows along x are r = (dj+1) +
 // 3(dk+1), and the x offset di selects a block of nine bits (dilate does not depend on which
-// grid axis is which: the connectivities are symmetric). With fewer than laneMax swept voxels
-// the three cells of a cube row are compared with the voxel in one 64-bit subtraction (see
-// packLanes), so a mask costs nine subtractions instead of 27 comparisons.
-func (ws *TFCEWorkspace) links(packed bool) {
+// grid axis is which: the connectivities are symmetric). This form compares one cell at a
+// time with the node map; maps of fewer than laneMax swept float32 values take linksLanes.
+func (ws *TFCEWorkspace) links() {
 	nx, ny, nz := ws.dims[0], ws.dims[1], ws.dims[2]
-	node, rep, conn, nbr := ws.node, ws.rep, ws.conn, ws.nbrBits
+	node, rep, nbr := ws.node, ws.rep, ws.nbrBits
 	off := ws.cellOff
 	var rows [9]int32 // padded offset of the centre cell (di = 0) of each row of the cube
 	for r := range rows {
 		rows[r] = off[r+9]
 	}
-	trip := ws.trip
+	corners := ws.conn == Corners
 	extra := ws.extra[:0]
 	for k := 0; k < nz; k++ {
 		for j := 0; j < ny; j++ {
 			g0 := 1 + ws.px*(j+1+ws.py*(k+1))
-			nodeRow := node[g0 : g0+nx]
-			var tr [9][]uint64
-			if packed {
-				// tr[r][i] holds the cells di = −1, 0, +1 of cube row r of voxel i.
-				for r, o := range rows {
-					a := g0 + int(o) - 1
-					tr[r] = trip[a : a+nx : a+nx]
-				}
-			}
-			t0, t1, t2, t3, t4 := tr[0], tr[1], tr[2], tr[3], tr[4]
-			t5, t6, t7, t8 := tr[5], tr[6], tr[7], tr[8]
-			for i, t := range nodeRow {
+			for i, t := range node[g0 : g0+nx] {
 				if t == noNode {
 					continue
 				}
 				g := int32(g0 + i)
-				var m uint32
-				if packed {
-					// Lane guard bits of (row − t) are set where the cell was not swept
-					// before t; row r's go to bits 12+r, 33+r and 54+r of acc.
-					tt := uint64(t) * laneOnes
-					acc := (t0[i]-tt)&laneGuards>>8 | (t1[i]-tt)&laneGuards>>7 |
-						(t2[i]-tt)&laneGuards>>6 | (t3[i]-tt)&laneGuards>>5 |
-						(t4[i]-tt)&laneGuards>>4 | (t5[i]-tt)&laneGuards>>3 |
-						(t6[i]-tt)&laneGuards>>2 | (t7[i]-tt)&laneGuards>>1 |
-						(t8[i]-tt)&laneGuards
-					later := uint32(acc>>12)&0x1ff | uint32(acc>>33)&0x1ff<<9 | uint32(acc>>54)&0x1ff<<18
-					m = ^later & cubeBits
-				} else {
-					m = cubeMask(node, g, t, &rows)
-				}
+				m := cubeMask(node, g, t, &rows)
 				seeds := m & nbr
 				if seeds == 0 {
 					rep[t] = -1
 					continue
 				}
-				// Grow a group from a seed through m until it holds every seed left (the usual
-				// case: one group, often after one step) or stops growing. A face centre, when
-				// there is one, reaches 16 of the 26 cells in one step, so it seeds first.
-				first := true
-				for seeds != 0 {
-					seed := seeds & faceBits
-					if seed == 0 {
-						seed = seeds
-					}
-					c := bits.TrailingZeros32(seed)
-					comp := ws.cellNbr[c] & m
-					for seeds&^comp != 0 {
-						grown := dilate(conn, comp) & m
-						if grown == comp {
-							break
-						}
-						comp = grown
-					}
-					seeds &^= comp | 1<<c
-					u := node[g+off[c]]
-					if first {
-						rep[t] = u
-						first = false
-					} else {
-						extra = append(extra, uint64(t)<<32|uint64(u))
-					}
+				if corners && oneGroup(seeds) {
+					rep[t] = node[g+off[bits.TrailingZeros32(seeds&faceBits)]]
+					continue
+				}
+				first, others := ws.cubeGroups(m, seeds)
+				rep[t] = node[g+off[first]]
+				for ; others != 0; others &= others - 1 {
+					u := node[g+off[bits.TrailingZeros32(others)]]
+					extra = append(extra, uint64(t)<<32|uint64(u))
 				}
 			}
 		}
 	}
 	slices.Sort(extra)
 	ws.extra = extra
+}
+
+// linksLanes is links for float32 maps of fewer than laneMax swept voxels. It visits the swept
+// voxels alone, in index order (ws.gidx), and takes the ranks of a voxel and of its cube's
+// cells from the packed lanes (see packLanes): the three cells of a cube row are compared with
+// the voxel in one 64-bit subtraction, so a mask costs nine subtractions instead of 27
+// comparisons, and the node map is not read.
+func (ws *TFCEWorkspace) linksLanes(n int) {
+	rep, nbr := ws.rep[:n], ws.nbrBits
+	off := ws.cellOff
+	var rows [9]int32 // padded offset of the word holding cells di = −1, 0, +1 of each cube row
+	for r := range rows {
+		rows[r] = off[r+9] - 1
+	}
+	r0, r1, r2, r3, r4 := rows[0], rows[1], rows[2], rows[3], rows[4]
+	r5, r6, r7, r8 := rows[5], rows[6], rows[7], rows[8]
+	trip := ws.trip
+	rank := func(g int32) int32 { return int32(trip[g]) & laneMax } // lane 0 of trip[g]: cell g
+	corners := ws.conn == Corners
+	extra := ws.extra[:0]
+	for _, g := range ws.gidx[:n] {
+		w4 := trip[g+r4] // row 4 is the voxel's own: lane 1 is the voxel
+		t := int32(w4>>laneBits) & laneMax
+		// Lane guard bits of (row − t) are set where the cell was not swept before t; row
+		// r's go to bits 12+r, 33+r and 54+r of acc.
+		tt := uint64(t) * laneOnes
+		acc := (trip[g+r0]-tt)&laneGuards>>8 | (trip[g+r1]-tt)&laneGuards>>7 |
+			(trip[g+r2]-tt)&laneGuards>>6 | (trip[g+r3]-tt)&laneGuards>>5 |
+			(w4-tt)&laneGuards>>4 | (trip[g+r5]-tt)&laneGuards>>3 |
+			(trip[g+r6]-tt)&laneGuards>>2 | (trip[g+r7]-tt)&laneGuards>>1 |
+			(trip[g+r8]-tt)&laneGuards
+		later := uint32(acc>>12)&0x1ff | uint32(acc>>33)&0x1ff<<9 | uint32(acc>>54)&0x1ff<<18
+		m := ^later & cubeBits
+		seeds := m & nbr
+		if seeds == 0 {
+			rep[t] = -1
+			continue
+		}
+		if corners && oneGroup(seeds) {
+			rep[t] = rank(g + off[bits.TrailingZeros32(seeds&faceBits)])
+			continue
+		}
+		first, others := ws.cubeGroups(m, seeds)
+		rep[t] = rank(g + off[first])
+		for ; others != 0; others &= others - 1 {
+			u := rank(g + off[bits.TrailingZeros32(others)])
+			extra = append(extra, uint64(t)<<32|uint64(u))
+		}
+	}
+	slices.Sort(extra)
+	ws.extra = extra
+}
+
+// oneGroup reports, under 26-connectivity, that the swept neighbours seeds (not empty) form one
+// group of which cubeGroups would pick the face centre of lowest bit: two face centres are
+// neighbours unless opposite, so the face centres of seeds are joined when they are not just an
+// opposite pair, and every other cell of seeds joins them when it neighbours one of them. Most
+// voxels of a smooth map pass this test. faceCover holds, per set of face centres, the cells
+// they reach (0 for none or an opposite pair alone), indexed by a multiplicative hash of their
+// bits that has no collisions on the 64 sets (faceMagic, found by search; checked when the
+// table is built).
+func oneGroup(seeds uint32) bool {
+	return seeds&^faceCover[faceHash(seeds&faceBits)] == 0
+}
+
+const faceMagic = 0x4404809004882c40
+
+// faceHash maps the face-centre bits fb to 0..63, distinctly for each of the 64 sets.
+func faceHash(fb uint32) uint64 { return uint64(fb) * faceMagic >> 58 }
+
+var faceCover = func() (cover [64]uint32) {
+	var used [64]bool
+	for s := range 64 {
+		var fb uint32
+		for i, c := range [6]uint{4, 10, 12, 14, 16, 22} {
+			if s>>i&1 != 0 {
+				fb |= 1 << c
+			}
+		}
+		h := faceHash(fb)
+		if used[h] {
+			panic("cluster: the face-centre hash has a collision")
+		}
+		used[h] = true
+		if fb != 0 && fb != oppX && fb != oppY && fb != oppZ {
+			cover[h] = dilate(Corners, fb)
+		}
+	}
+	return cover
+}()
+
+// cubeGroups splits seeds, the swept neighbours of a voxel (the cells of m, the cube cells
+// swept before it, that are its neighbours), into groups joined under the connectivity through
+// cells of m, and returns one cell of the first group and a mask with one cell of each other.
+// A group grows from a seed through m until it holds every seed left (the usual case: one
+// group, often after one step) or stops growing. A face centre, when there is one, reaches 16
+// of the 26 cells in one step, so it seeds first.
+func (ws *TFCEWorkspace) cubeGroups(m, seeds uint32) (first int, others uint32) {
+	first = -1
+	for seeds != 0 {
+		seed := seeds & faceBits
+		if seed == 0 {
+			seed = seeds
+		}
+		c := bits.TrailingZeros32(seed)
+		comp := ws.cellNbr[c] & m
+		for seeds&^comp != 0 {
+			grown := dilate(ws.conn, comp) & m
+			if grown == comp {
+				break
+			}
+			comp = grown
+		}
+		seeds &^= comp | 1<<c
+		if first < 0 {
+			first = c
+		} else {
+			others |= 1 << c
+		}
+	}
+	return first, others
+}
+
+// clearNode marks every voxel of the node map as not swept.
+func (ws *TFCEWorkspace) clearNode() {
+	nx, ny, nz := ws.dims[0], ws.dims[1], ws.dims[2]
+	for k := 0; k < nz; k++ {
+		for j := 0; j < ny; j++ {
+			g0 := 1 + ws.px*(j+1+ws.py*(k+1))
+			row := ws.node[g0 : g0+nx]
+			for i := range row {
+				row[i] = noNode
+			}
+		}
+	}
 }
 
 // Lanes of the packed comparison: three 21-bit lanes per word, each holding laneGuard | rank
@@ -465,6 +603,9 @@ func cubeMask(node []int32, g, t int32, rows *[9]int32) uint32 {
 const (
 	centreBit uint32 = 1 << 13
 	faceBits  uint32 = 1<<4 | 1<<10 | 1<<12 | 1<<14 | 1<<16 | 1<<22 // the six face centres
+	oppX      uint32 = 1<<4 | 1<<22                                 // opposite face centres
+	oppY      uint32 = 1<<12 | 1<<14
+	oppZ      uint32 = 1<<10 | 1<<16
 	cubeBits  uint32 = 1<<27 - 1
 	xLow      uint32 = 0b001_001_001_001_001_001_001_001_001 // di = −1
 	xHigh     uint32 = xLow << 2                             // di = +1
@@ -489,11 +630,12 @@ func dilate(conn Connectivity, m uint32) uint32 {
 	return dilZ(dilY(dilX(m)))
 }
 
-// gather resets the node map and collects the sort keys of the voxels > 0 of stat (or −stat),
-// in increasing index order; a first pass counts them, so the buffers are sized once. For
-// float32 maps (packed) a key is ^bits(value)<<32 | padded index, sorted on its upper half,
-// and the radix histograms of the three digits are counted here; for float64 maps a key is
-// ^bits(value), and the padded index goes to order.
+// gather collects the sort keys of the voxels > 0 of stat (or −stat), in increasing index
+// order; a first pass counts them, so the buffers are sized once. For float32 maps (packed) a
+// key is ^bits(value)<<32 | padded index, sorted on its upper half, the radix histograms of
+// the three digits are counted here, and the padded indices are kept in index order in gidx
+// (the node map is left to sweep); for float64 maps a key is ^bits(value), the padded index
+// goes to order, and the node map is reset.
 func gather[T Float](ws *TFCEWorkspace, stat []T, negate bool) (n int, packed bool) {
 	nx, ny, nz := ws.dims[0], ws.dims[1], ws.dims[2]
 	probe := T(1 << 24)
@@ -548,6 +690,10 @@ func gather[T Float](ws *TFCEWorkspace, stat []T, negate bool) (n int, packed bo
 func gatherPacked[T Float](ws *TFCEWorkspace, stat []T, sign T) (n int, ok bool) {
 	nx, ny, nz := ws.dims[0], ws.dims[1], ws.dims[2]
 	keys := ws.keys[:cap(ws.keys)]
+	if cap(ws.gidx) < len(keys) {
+		ws.gidx = make([]int32, len(keys))
+	}
+	gidx := ws.gidx[:len(keys)]
 	h := &ws.hist
 	h0, h1, h2 := &h[0], &h[1], &h[2]
 	*h0, *h1, *h2 = [radixBuckets]int32{}, [radixBuckets]int32{}, [radixBuckets]int32{}
@@ -556,9 +702,7 @@ func gatherPacked[T Float](ws *TFCEWorkspace, stat []T, sign T) (n int, ok bool)
 		for j := 0; j < ny; j++ {
 			g0 := 1 + ws.px*(j+1+ws.py*(k+1))
 			v0 := nx * (j + ny*k)
-			nodeRow := ws.node[g0 : g0+nx]
 			for i, x := range stat[v0 : v0+nx] {
-				nodeRow[i] = noNode
 				h := sign * x
 				if !(h > 0) {
 					continue
@@ -571,12 +715,69 @@ func gatherPacked[T Float](ws *TFCEWorkspace, stat []T, sign T) (n int, ok bool)
 				h1[(b>>radixBits)&(radixBuckets-1)]++
 				h2[(b>>(2*radixBits))&(radixBuckets-1)]++
 				keys[p] = uint64(b)<<32 | uint64(g0+i)
+				gidx[p] = int32(g0 + i)
 				p++
 			}
 		}
 	}
 	ws.keys = keys[:p]
 	return p, true
+}
+
+// gatherSparse is gatherPacked for a float32 map given by its voxels > 0 (see TFCEMaxSparse),
+// which it checks: indices increasing and inside the grid, values > 0.
+func gatherSparse(ws *TFCEWorkspace, idx []int32, val []float32) {
+	n := len(idx)
+	nx, ny, nz := ws.dims[0], ws.dims[1], ws.dims[2]
+	if n > nx*ny*nz {
+		panic(fmt.Sprintf("cluster: %d sparse voxels on a grid of %d", n, nx*ny*nz))
+	}
+	if cap(ws.keys) < n || cap(ws.keys2) < n {
+		ws.grow(n, true)
+	}
+	keys := ws.keys[:n]
+	if cap(ws.gidx) < n {
+		ws.gidx = make([]int32, cap(ws.keys))
+	}
+	gidx := ws.gidx[:n]
+	h := &ws.hist
+	h0, h1, h2 := &h[0], &h[1], &h[2]
+	*h0, *h1, *h2 = [radixBuckets]int32{}, [radixBuckets]int32{}, [radixBuckets]int32{}
+	// Voxel v of grid row (j, k) is padded cell v + off, off = g0 − v0 of that row.
+	j, k := 0, 0
+	rowEnd := int32(nx)
+	off := int32(1 + ws.px*(1+ws.py))
+	last := int32(-1)
+	val = val[:n]
+	for p, v := range idx {
+		if v <= last {
+			panic(fmt.Sprintf("cluster: sparse voxel %d (index %d) does not follow index %d", p, v, last))
+		}
+		last = v
+		for v >= rowEnd {
+			rowEnd += int32(nx)
+			if j++; j == ny {
+				j = 0
+				k++
+			}
+			if k == nz {
+				panic(fmt.Sprintf("cluster: sparse voxel index %d is outside the grid of %d", v, nx*ny*nz))
+			}
+			off = int32(1+ws.px*(j+1+ws.py*(k+1))) - (rowEnd - int32(nx))
+		}
+		x := val[p]
+		if !(x > 0) {
+			panic(fmt.Sprintf("cluster: sparse voxel %d has value %g, want > 0", v, x))
+		}
+		g := v + off
+		b := ^math.Float32bits(x)
+		h0[b&(radixBuckets-1)]++
+		h1[(b>>radixBits)&(radixBuckets-1)]++
+		h2[(b>>(2*radixBits))&(radixBuckets-1)]++
+		keys[p] = uint64(b)<<32 | uint64(g)
+		gidx[p] = g
+	}
+	ws.keys = keys
 }
 
 // grow makes room for n nodes: exactly at first, with a quarter more to spare when a later

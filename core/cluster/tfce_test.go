@@ -4,6 +4,7 @@ import (
 	"cmp"
 	"encoding/json"
 	"math"
+	"math/bits"
 	"math/rand/v2"
 	"os"
 	"slices"
@@ -399,6 +400,123 @@ func TestCubeDilate(t *testing.T) {
 			if got := dilate(conn, 1<<c); got != want {
 				t.Errorf("%v cell %d: dilate = %027b, want %027b", conn, c, got, want)
 			}
+		}
+	}
+}
+
+// cubeGroups returns one cell of each group of swept neighbours joined through swept cube
+// cells, compared with a breadth-first search over the cells of the mask (definition of
+// connected components; neighbours per isNeighbour); and the 26-connectivity shortcut
+// oneGroup only accepts masks that hold one group, for which cubeGroups picks the face centre
+// of lowest bit (so both give the sweep the same neighbour).
+func TestCubeGroups(t *testing.T) {
+	rng := rand.New(rand.NewPCG(61, 62))
+	conns := []Connectivity{Faces, Edges, Corners}
+	var nbrs [3][27][]int
+	var wss [3]*TFCEWorkspace
+	for ci, conn := range conns {
+		wss[ci] = NewTFCEWorkspace([3]int{3, 3, 3}, conn)
+		for a := range 27 {
+			for d := range 27 {
+				if isNeighbour(d%3-a%3, (d/3)%3-(a/3)%3, d/9-a/9, conn) {
+					nbrs[ci][a] = append(nbrs[ci][a], d)
+				}
+			}
+		}
+	}
+	shortcuts := 0
+	queue := make([]int, 0, 27)
+	for trial := range 20000 {
+		// Densities from sparse to nearly full; the centre (cell 13) is never swept before
+		// itself.
+		p := float64(trial%12+1) / 13
+		var m uint32
+		for c := range 27 {
+			if c != 13 && rng.Float64() < p {
+				m |= 1 << c
+			}
+		}
+		for ci, conn := range conns {
+			ws := wss[ci]
+			seeds := m & ws.nbrBits
+			if seeds == 0 {
+				continue
+			}
+			// Components of the cells of m, by breadth-first search; −1 outside m.
+			var lab [27]int
+			for c := range lab {
+				lab[c] = -1
+			}
+			ncomp := 0
+			for c := range 27 {
+				if m&(1<<c) == 0 || lab[c] >= 0 {
+					continue
+				}
+				lab[c] = ncomp
+				queue = append(queue[:0], c)
+				for len(queue) > 0 {
+					a := queue[0]
+					queue = queue[1:]
+					for _, d := range nbrs[ci][a] {
+						if m&(1<<d) != 0 && lab[d] < 0 {
+							lab[d] = ncomp
+							queue = append(queue, d)
+						}
+					}
+				}
+				ncomp++
+			}
+			var want, got uint32 // components holding a seed, and holding a picked cell
+			for c := range 27 {
+				if seeds&(1<<c) != 0 {
+					want |= 1 << lab[c]
+				}
+			}
+			first, others := ws.cubeGroups(m, seeds)
+			picked := others | 1<<first
+			for c := range 27 {
+				if picked&(1<<c) == 0 {
+					continue
+				}
+				if seeds&(1<<c) == 0 {
+					t.Fatalf("%v mask %027b: cell %d is not a swept neighbour", conn, m, c)
+				}
+				if got&(1<<lab[c]) != 0 {
+					t.Fatalf("%v mask %027b: two cells of one group", conn, m)
+				}
+				got |= 1 << lab[c]
+			}
+			if got != want {
+				t.Fatalf("%v mask %027b: groups %b, want %b", conn, m, got, want)
+			}
+			if fb := seeds & faceBits; conn == Corners && oneGroup(seeds) {
+				shortcuts++
+				if bits.OnesCount32(want) != 1 || first != bits.TrailingZeros32(fb) || others != 0 {
+					t.Fatalf("mask %027b: shortcut taken with %d groups, first %d (face centre %d)", m, bits.OnesCount32(want), first, bits.TrailingZeros32(fb))
+				}
+			}
+		}
+	}
+	if shortcuts == 0 {
+		t.Error("the 26-connectivity shortcut was never taken")
+	}
+	// The table behind oneGroup, for every set of face centres: the cells they reach under
+	// 26-connectivity (dilate, checked against the definition in TestCubeDilate) when they
+	// are joined, nothing when there are none or only an opposite pair.
+	faces := []int{4, 10, 12, 14, 16, 22}
+	for s := range 64 {
+		var fb uint32
+		for i, c := range faces {
+			if s>>i&1 != 0 {
+				fb |= 1 << c
+			}
+		}
+		want := dilate(Corners, fb)
+		if n := bits.OnesCount32(fb); n == 0 || n == 2 && (fb == 1<<4|1<<22 || fb == 1<<10|1<<16 || fb == 1<<12|1<<14) {
+			want = 0
+		}
+		if got := faceCover[faceHash(fb)]; got != want {
+			t.Errorf("face centres %027b: cover %027b, want %027b", fb, got, want)
 		}
 	}
 }

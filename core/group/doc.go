@@ -50,6 +50,17 @@
 // float32 grid per relabelling of its block (32 for sign flips, 8 for permutations) when
 // cluster or TFCE maxima are recorded.
 //
+// For sign flips of a single t coordinate (a one-column design: the one-sample test) the table
+// sums, the statistics, the maxima and the grid values are formed per 256 voxels and
+// relabelling while they are in cache. When only maxima are asked for (no per-voxel
+// exceedances) and no reader of the grid looks at values ≤ 0 (the positive TFCE, a cluster
+// threshold > 0), a voxel whose numerator k·m is ≤ 0 has t ≤ 0 and is left out: it gets 0
+// without the division and square root, and a relabelling whose maximum statistic comes out
+// ≤ 0 is recomputed in full. With MaxTFCE and no cluster maxima, the voxels whose float32 t
+// is > 0 go to cluster.TFCEMaxSparse as lists (index, value) in place of a grid, so the TFCE
+// reads no empty voxels. Every value is the one the full path computes, so the maxima are
+// unchanged.
+//
 // # Relabellings
 //
 // There are 2^n sign flips; the unique permutations are the distinct orderings of the design's

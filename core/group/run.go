@@ -44,6 +44,9 @@ type Problem struct {
 	rz    []float64 // N×V residuals of the reduced model (the data when Z is empty)
 	ss    []float64 // per voxel Σ_i rz_i²
 	m0    []float64 // per voxel, the invariant coordinate (u_0'rz) when M.invariant
+	// ascending: Space.Voxels increase strictly (as documented), so a relabelling's voxels
+	// with t > 0 can go to the TFCE as a sparse list in index order.
+	ascending bool
 }
 
 // Prepare applies the model to data y (N×V row-major: subject i's values at y[i*V:(i+1)*V],
@@ -69,6 +72,13 @@ func (m *Model) Prepare(y []float64, sp Space) *Problem {
 		row := p.rz[i*v : (i+1)*v]
 		for k, x := range row {
 			p.ss[k] += x * x
+		}
+	}
+	p.ascending = true
+	for k := 1; k < v; k++ {
+		if sp.Voxels[k] <= sp.Voxels[k-1] {
+			p.ascending = false
+			break
 		}
 	}
 	if m.invariant {
@@ -229,22 +239,30 @@ func (p *Problem) Run(ctx context.Context, pl *Plan, lo, hi int, opt Options) (*
 
 // worker holds the buffers of one goroutine.
 type worker struct {
-	p      *Problem
-	opt    Options
-	nb     int       // relabellings per block
-	rows   int       // coordinates of m computed per relabelling (r, or r − 1 with the invariant)
-	coef   []float64 // nb·rows × N coefficients
-	out    []float64 // nb·rows × chunk
-	mm     []float64 // chunk: |m|²
-	st     []float64 // chunk: the statistic
-	num    []float64 // Q × chunk: statistic numerators
-	grids  [][]float32
+	p     *Problem
+	opt   Options
+	nb    int       // relabellings per block
+	rows  int       // coordinates of m computed per relabelling (r, or r − 1 with the invariant)
+	coef  []float64 // nb·rows × N coefficients
+	out   []float64 // nb·rows × chunk
+	mm    []float64 // chunk: |m|²
+	st    []float64 // chunk: the statistic
+	num   []float64 // Q × chunk: statistic numerators
+	grids [][]float32
+	// With sparse, a relabelling's grid is its voxels with t > 0 alone: sidx their linear
+	// indices (ascending) and sval their values (see flipT).
+	sparse bool
+	sidx   [][]int32
+	sval   [][]float32
 	tfce   *cluster.TFCEWorkspace
 	inBuf  []bool
 	max    []Maxima
 	exceed []int64
 	keep   *Observed
 	tol    []float64 // per voxel, observed − TieTol·|observed| (Exceed)
+	noSkip bool      // compute every voxel's statistic (see skipOK)
+	full   *worker   // made on first use by fullMaxStat
+	pos    []int32   // flipSub: positions of the voxels computed (flipT)
 
 	// Sign flips: per group of up to flipGroup subjects, a table of the partial sums of every
 	// sign pattern (see flipSums).
@@ -281,6 +299,7 @@ func (p *Problem) newWorker(nb int, opt Options) *worker {
 	w.out = make([]float64, nb*rows*chunk)
 	w.mm = make([]float64, chunk)
 	w.st = make([]float64, chunk)
+	w.pos = make([]int32, flipSub)
 	nk := 1
 	if m.F {
 		nk = m.Q
@@ -288,7 +307,20 @@ func (p *Problem) newWorker(nb int, opt Options) *worker {
 	w.num = make([]float64, nk*chunk)
 	w.max = make([]Maxima, nb)
 	nvox := p.Space.Dims[0] * p.Space.Dims[1] * p.Space.Dims[2]
-	if opt.Stats&(MaxCluster|MaxTFCE) != 0 {
+	// A one-coordinate t under sign flips with the TFCE maximum alone (besides the statistic)
+	// hands the TFCE its voxels > 0 as lists instead of a grid: the statistics of voxels ≤ 0
+	// are skipped there (see skipOK), and the TFCE reads no empty voxels.
+	simpleT := !m.F && !m.invariant && rows == 1
+	w.sparse = w.flips && simpleT && p.ascending && opt.Stats&MaxTFCE != 0 &&
+		opt.Stats&MaxCluster == 0 && !(opt.Exceed && opt.Observed != nil)
+	switch {
+	case w.sparse:
+		w.sidx, w.sval = make([][]int32, nb), make([][]float32, nb)
+		for b := range nb {
+			w.sidx[b] = make([]int32, 0, p.v/2+1)
+			w.sval[b] = make([]float32, 0, p.v/2+1)
+		}
+	case opt.Stats&(MaxCluster|MaxTFCE) != 0:
 		w.grids = make([][]float32, nb)
 		for b := range w.grids {
 			w.grids[b] = make([]float32, nvox)
@@ -357,7 +389,20 @@ func (w *worker) block(labs []Relabelling) {
 	nu := m.DF
 	vox := p.Space.Voxels
 	simpleT := !m.F && !m.invariant && rows == 1
-	for c0 := 0; c0 < p.v; c0 += chunk {
+	// Sign flips of a one-coordinate t (a one-column design: the one-sample test) take one
+	// fused pass per voxel chunk; see flipT.
+	fused := w.flips && simpleT && keep == nil
+	skip := fused && w.skipOK()
+	sparse := w.sparse && skip
+	if sparse {
+		for b := range nb {
+			w.sidx[b], w.sval[b] = w.sidx[b][:0], w.sval[b][:0]
+		}
+	}
+	for c0 := 0; c0 < p.v && fused; c0 += chunk {
+		w.flipT(nb, c0, min(p.v, c0+chunk)-c0, skip, sparse)
+	}
+	for c0 := 0; c0 < p.v && !fused; c0 += chunk {
 		c1 := min(p.v, c0+chunk)
 		cl := c1 - c0
 		// m coordinates: out[b, kk] = Σ_i coef[b, kk, i] rz[i, c0:c1].
@@ -458,11 +503,168 @@ func (w *worker) block(labs []Relabelling) {
 		if w.opt.Stats&MaxTFCE != 0 {
 			// The maximum alone (no map): every relabelling, the identity included, takes it
 			// through the same arithmetic, so the identity's maximum is the observed one.
-			w.max[b].TFCE = cluster.TFCEMaxTail(w.tfce, grid, TFCEE, TFCEH, cluster.TailPositive)
+			if sparse {
+				w.max[b].TFCE = cluster.TFCEMaxSparse(w.tfce, w.sidx[b], w.sval[b], TFCEE, TFCEH)
+			} else {
+				w.max[b].TFCE = cluster.TFCEMaxTail(w.tfce, grid, TFCEE, TFCEH, cluster.TailPositive)
+			}
 			if keep != nil {
 				keep.TFCE = make([]float64, len(grid))
 				cluster.TFCETo(w.tfce, keep.TFCE, grid, TFCEE, TFCEH, cluster.TailPositive)
 			}
+		}
+	}
+	if skip && w.opt.Stats&MaxStat != 0 {
+		for b, lab := range labs {
+			if !(w.max[b].Stat > 0) {
+				w.max[b].Stat = w.fullMaxStat(lab)
+			}
+		}
+	}
+}
+
+// skipOK reports whether relabellings may leave out the statistic of voxels where it is ≤ 0
+// (written as 0 to the grid): true when nothing but the maxima are asked for (no Observed map,
+// no per-voxel exceedance counts) and no grid reader looks at values ≤ 0 — the positive TFCE
+// ignores them and a cluster threshold > 0 excludes them. A maximum statistic ≤ 0 is then
+// recomputed in full (fullMaxStat).
+func (w *worker) skipOK() bool {
+	return w.keep == nil && w.exceed == nil && !w.noSkip &&
+		(w.opt.Stats&MaxCluster == 0 || w.opt.Cluster > 0)
+}
+
+// fullMaxStat returns the maximum statistic of one relabelling with every voxel computed, in
+// a block of its own (the arithmetic of a relabelling does not depend on its block): the
+// maximum of a relabelling whose statistics are all ≤ 0.
+func (w *worker) fullMaxStat(lab Relabelling) float64 {
+	if w.full == nil {
+		w.full = w.p.newWorker(1, Options{Stats: MaxStat})
+		w.full.noSkip = true
+	}
+	w.full.block([]Relabelling{lab})
+	return w.full.max[0].Stat
+}
+
+// flipT computes the statistics of the block's sign flips for voxels c0..c0+cl of a
+// one-coordinate t contrast (the coordinate sums of flipSums, t = k·m / sqrt((SS − m²)/ν)),
+// flipSub voxels at a time: the pattern tables, then per relabelling its sums, its statistics,
+// its maximum, its grid values and exceedances, while they are in cache. With skip, a voxel
+// whose numerator k·m is not > 0 (so t ≤ 0) gets 0 in the grid without the division and the
+// square root; its statistic does not enter the maximum (see skipOK). With sparse (and skip)
+// the voxels whose float32 t is > 0 — those the TFCE sweeps — are appended to the
+// relabelling's lists instead of a grid.
+func (w *worker) flipT(nb, c0, cl int, skip, sparse bool) {
+	p, m := w.p, w.p.M
+	kc := m.k[m.r-1]
+	nu := m.DF
+	for s0 := 0; s0 < cl; s0 += flipSub {
+		sl := min(flipSub, cl-s0)
+		v0 := c0 + s0
+		w.flipTables(0, v0, sl)
+		ss := p.ss[v0 : v0+sl]
+		vx := p.Space.Voxels[v0 : v0+sl]
+		for b := range nb {
+			o := w.out[b*chunk+s0 : b*chunk+s0+sl]
+			w.flipSum(o, b, 0)
+			ss := ss[:len(o)]
+			vx := vx[:len(o)]
+			var grid []float32
+			if w.grids != nil {
+				grid = w.grids[b]
+			}
+			mx := w.max[b].Stat
+			switch {
+			case sparse:
+				// The voxels with k·m > 0 are listed first, without a branch on the sign
+				// (which changes every few voxels), then only they are computed.
+				pos := w.pos[:len(o)]
+				q := 0
+				for v, x := range o {
+					pos[q] = int32(v)
+					inc := 0
+					if kc*x > 0 {
+						inc = 1
+					}
+					q += inc
+				}
+				idx, val := w.sidx[b], w.sval[b]
+				for _, v := range pos[:q] {
+					x := o[v]
+					num := kc * x
+					rss := ss[v] - x*x
+					t := 0.0
+					if rss > 1e-12*ss[v] {
+						t = num / math.Sqrt(rss/nu)
+					}
+					if t > mx {
+						mx = t
+					}
+					if f := float32(t); f > 0 {
+						idx = append(idx, vx[v])
+						val = append(val, f)
+					}
+				}
+				w.sidx[b], w.sval[b] = idx, val
+			case skip && grid != nil:
+				for v, x := range o {
+					num := kc * x
+					if !(num > 0) {
+						grid[vx[v]] = 0
+						continue
+					}
+					rss := ss[v] - x*x
+					t := 0.0
+					if rss > 1e-12*ss[v] {
+						t = num / math.Sqrt(rss/nu)
+					}
+					grid[vx[v]] = float32(t)
+					if t > mx {
+						mx = t
+					}
+				}
+			case skip:
+				for v, x := range o {
+					num := kc * x
+					if !(num > 0) {
+						continue
+					}
+					rss := ss[v] - x*x
+					if rss > 1e-12*ss[v] {
+						if t := num / math.Sqrt(rss/nu); t > mx {
+							mx = t
+						}
+					} else if 0 > mx {
+						mx = 0
+					}
+				}
+			default:
+				st := w.st[:len(o)]
+				for v, x := range o {
+					rss := ss[v] - x*x
+					t := 0.0
+					if rss > 1e-12*ss[v] {
+						t = kc * x / math.Sqrt(rss/nu)
+					}
+					st[v] = t
+					if t > mx {
+						mx = t
+					}
+				}
+				if grid != nil {
+					for v, t := range st {
+						grid[vx[v]] = float32(t)
+					}
+				}
+				if w.exceed != nil {
+					ex, tol := w.exceed[v0:v0+sl], w.tol[v0:v0+sl]
+					for v, t := range st {
+						if t >= tol[v] {
+							ex[v]++
+						}
+					}
+				}
+			}
+			w.max[b].Stat = mx
 		}
 	}
 }
@@ -541,64 +743,75 @@ func (w *worker) stat(b, c0, cl int) {
 // additions; the tables are shared by the block. Every relabelling is summed in the same
 // order whatever the block, so results do not depend on the block size or worker count.
 func (w *worker) flipSums(nb, c0, cl int) {
-	p, m := w.p, w.p.M
-	n, r, rows, G := m.N, m.r, w.rows, w.ngrp
-	k0 := r - rows
-	const np = 1 << flipGroup
 	for s0 := 0; s0 < cl; s0 += flipSub {
 		sl := min(flipSub, cl-s0)
-		v0 := c0 + s0
-		// Tables: tab[((kk·G + g)·np + pattern)·flipSub + v].
-		for kk := range rows {
-			k := k0 + kk
-			for g := range G {
-				i0 := flipGroup * g
-				gs := min(flipGroup, n-i0)
-				base := (kk*G + g) * np * flipSub
-				t0 := w.tab[base : base+sl]
-				clear(t0)
-				for j := range gs {
-					i := i0 + j
-					axpy(t0, m.u[i*r+k], p.rz[i*p.v+v0:i*p.v+v0+sl])
-				}
-				for j := range gs {
-					i := i0 + j
-					a := -2 * m.u[i*r+k]
-					x := p.rz[i*p.v+v0 : i*p.v+v0+sl]
-					for q := range 1 << j {
-						src := w.tab[base+q*flipSub : base+q*flipSub+sl]
-						dst := w.tab[base+(q|1<<j)*flipSub : base+(q|1<<j)*flipSub+sl]
-						flipRow(dst, src, a, x)
-					}
-				}
-			}
+		for kk := range w.rows {
+			w.flipTables(kk, c0+s0, sl)
 		}
 		// Each relabelling: the sum over groups of its pattern's table row, in group order.
 		for b := range nb {
-			pat := w.pat[b*G : (b+1)*G]
-			for kk := range rows {
-				o := w.out[(b*rows+kk)*chunk+s0 : (b*rows+kk)*chunk+s0+sl]
-				row := func(g int) []float64 {
-					at := ((kk*G+g)*np + int(pat[g])) * flipSub
-					return w.tab[at : at+sl]
-				}
-				g := 0
-				switch {
-				case G >= 4:
-					sum4(o, row(0), row(1), row(2), row(3), false)
-					g = 4
-				default:
-					copy(o, row(0))
-					g = 1
-				}
-				for ; g+4 <= G; g += 4 {
-					sum4(o, row(g), row(g+1), row(g+2), row(g+3), true)
-				}
-				for ; g < G; g++ {
-					add(o, row(g))
-				}
+			for kk := range w.rows {
+				w.flipSum(w.out[(b*w.rows+kk)*chunk+s0:(b*w.rows+kk)*chunk+s0+sl], b, kk)
 			}
 		}
+	}
+}
+
+// flipTables fills the pattern tables of coordinate k0 + kk for voxels v0..v0+sl (sl ≤
+// flipSub): tab[((kk·G + g)·np + pattern)·flipSub + v].
+func (w *worker) flipTables(kk, v0, sl int) {
+	p, m := w.p, w.p.M
+	n, r, G := m.N, m.r, w.ngrp
+	k := r - w.rows + kk
+	const np = 1 << flipGroup
+	for g := range G {
+		i0 := flipGroup * g
+		gs := min(flipGroup, n-i0)
+		base := (kk*G + g) * np * flipSub
+		t0 := w.tab[base : base+sl]
+		clear(t0)
+		for j := range gs {
+			i := i0 + j
+			axpy(t0, m.u[i*r+k], p.rz[i*p.v+v0:i*p.v+v0+sl])
+		}
+		for j := range gs {
+			i := i0 + j
+			a := -2 * m.u[i*r+k]
+			x := p.rz[i*p.v+v0 : i*p.v+v0+sl]
+			for q := range 1 << j {
+				src := w.tab[base+q*flipSub : base+q*flipSub+sl]
+				dst := w.tab[base+(q|1<<j)*flipSub : base+(q|1<<j)*flipSub+sl]
+				flipRow(dst, src, a, x)
+			}
+		}
+	}
+}
+
+// flipSum sets o to coordinate k0 + kk of relabelling b of the block for the voxels of the
+// tables (len(o) of them): the sum over groups of its pattern's table row, in group order.
+func (w *worker) flipSum(o []float64, b, kk int) {
+	G := w.ngrp
+	const np = 1 << flipGroup
+	pat := w.pat[b*G : (b+1)*G]
+	sl := len(o)
+	row := func(g int) []float64 {
+		at := ((kk*G+g)*np + int(pat[g])) * flipSub
+		return w.tab[at : at+sl]
+	}
+	g := 0
+	switch {
+	case G >= 4:
+		sum4(o, row(0), row(1), row(2), row(3), false)
+		g = 4
+	default:
+		copy(o, row(0))
+		g = 1
+	}
+	for ; g+4 <= G; g += 4 {
+		sum4(o, row(g), row(g+1), row(g+2), row(g+3), true)
+	}
+	for ; g < G; g++ {
+		add(o, row(g))
 	}
 }
 
