@@ -105,8 +105,10 @@ func TestNullCheckAndGroup(t *testing.T) {
 		t.Errorf("null distribution canvas looks blank: %+v", ns)
 	}
 	gnc := eval[nullCheckInfo](t, b, nullCheckState)
-	if gnc.Hidden || !strings.Contains(gnc.Text, "chance designs") {
-		t.Errorf("group null check not shown: %+v", gnc)
+	// At group level the null sets are the sign-flipped maps (a one-sample test), not
+	// chance designs (GroupResult.NullCheckText).
+	if gnc.Hidden || !strings.Contains(gnc.Text, "sign-flipped null sets") || strings.Contains(gnc.Text, "chance design") {
+		t.Errorf("group null check not shown in the group's words: %+v", gnc)
 	}
 	shoot("group.png")
 
@@ -152,5 +154,57 @@ func TestNullCheckAndGroup(t *testing.T) {
 	}
 	t.Logf("group demo natively (1 worker): %v", time.Since(tn).Round(time.Millisecond))
 	compareSummaries(t, one.Summary, native.Summary)
+
+	// 3. Re-thresholding the shown group result (merged from two workers) at a new alpha,
+	// without new permutations, gives what a new run at that alpha gives (identity: the
+	// permutation null does not depend on alpha), through the API and the alpha control.
+	re := eval[run](t, b, `window.winnow.rethreshold({alpha: 0.01}).then(r => ({summary: JSON.stringify(r.summary), ms: r.ms, n: 0}))`)
+	t.Logf("group rethreshold to alpha 0.01 in the page: %.0f ms", re.Ms)
+	native01, err := analysis.Group(context.Background(), analysis.DemoGroupInputs(names, files), analysis.GroupOptions{Workers: 1, Alpha: 0.01})
+	if err != nil {
+		t.Fatal(err)
+	}
+	compareSummaries(t, re.Summary, native01.Summary)
+	type formState struct {
+		Summary, Status, Correct, Alpha string
+	}
+	const byControl = `new Promise((resolve, reject) => {
+	  const el = document.getElementById("%s");
+	  el.value = "%s";
+	  el.dispatchEvent(new Event("change"));
+	  const t0 = Date.now();
+	  (function check() {
+	    const err = document.getElementById("error");
+	    const s = window.winnow.summary();
+	    if (!err.hidden && err.textContent) return resolve({summary: "", status: err.textContent});
+	    if (document.body.dataset.state === "done" && %s) return resolve({summary: JSON.stringify(s),
+	      status: document.getElementById("status").textContent,
+	      correct: document.getElementById("g-correct").value, alpha: document.getElementById("g-alpha").value});
+	    if (Date.now() - t0 > 60000) return reject(new Error("the control did not re-threshold"));
+	    setTimeout(check, 50);
+	  })();
+	})`
+	ctl := eval[formState](t, b, fmt.Sprintf(byControl, "g-alpha", "0.1", `s.contrasts[0].alpha === 0.1`))
+	native10, err := analysis.Group(context.Background(), analysis.DemoGroupInputs(names, files), analysis.GroupOptions{Workers: 1, Alpha: 0.1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if ctl.Summary == "" {
+		t.Fatalf("alpha control: %s", ctl.Status)
+	}
+	compareSummaries(t, ctl.Summary, native10.Summary)
+	if !strings.Contains(ctl.Status, "without new permutations") || ctl.Correct != "fwe-perm" || ctl.Alpha != "0.1" {
+		t.Errorf("after the alpha control: status %q, form %s at %s; want the re-threshold said and the form showing fwe-perm at 0.1", ctl.Status, ctl.Correct, ctl.Alpha)
+	}
+	// cluster-perm at another cluster-forming p needs the largest cluster of every
+	// relabelling at that p: the page says to run again instead of re-thresholding.
+	eval[bool](t, b, `window.winnow.group({demo: true, workers: 1, correct: "cluster-perm", perms: 200, clusterP: 0.01}).then(() => true)`)
+	ref := eval[formState](t, b, fmt.Sprintf(byControl, "g-cluster-p", "0.001", `false`))
+	if !strings.Contains(ref.Status, "cluster-forming p 0.001") || !strings.Contains(ref.Status, "run the group analysis again") {
+		t.Errorf("cluster-perm at a new cluster-forming p: %q; want the page to say it needs a new run", ref.Status)
+	}
+	if s := eval[string](t, b, `JSON.stringify(window.winnow.summary().contrasts[0].cluster_p)`); s != "0.01" {
+		t.Errorf("after the refused re-threshold the shown cluster_p is %s, want 0.01 (the result unchanged)", s)
+	}
 	b.check(t, srv.URL)
 }

@@ -16,8 +16,10 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"strconv"
 	"strings"
+	"sync"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -57,10 +59,14 @@ type GroupOptions struct {
 	Alpha     float64      // 0: 0.05
 	ClusterP  float64      // cluster-forming p; 0: 0.001
 	Workers   int          // 0: all cores
-	Shard     int          // K of Shards (1-based): run only the K-th slice of the relabellings
-	Shards    int          // 0: the whole run
-	Limits    nifti.Limits
-	Progress  func(stage string, done, total int)
+	// Block is the most relabellings a permutation worker computes together (0: the
+	// engine's default, group.Options.Block). Results do not depend on it; fewer hold less
+	// memory under tfce (about 2.5 bytes per analysed voxel per relabelling).
+	Block    int
+	Shard    int // K of Shards (1-based): run only the K-th slice of the relabellings
+	Shards   int // 0: the whole run
+	Limits   nifti.Limits
+	Progress func(stage string, done, total int)
 }
 
 // GroupResult is a group analysis: the summary, the maps and the permutation null. A shard
@@ -79,6 +85,43 @@ type GroupResult struct {
 	state *groupState
 	nulls []groupNull // per contrast
 	shard int         // 1-based; 0 for a complete result
+	// ran and ranNulls are the state and null as the run left them (every maximum it
+	// recorded): Rethreshold starts from them, however often it is called.
+	ran      *groupState
+	ranNulls []groupNull
+	// tails are per contrast of ran the log p and z of every voxel's statistic: they do not
+	// depend on the method or alpha, so Rethreshold takes them over instead of computing
+	// them again (the costly part of inference at 10⁵ voxels).
+	tails []statTails
+}
+
+// statTails are one contrast's per-voxel log p-values and z-scores, and the corrected
+// p-values of fwe-perm and tfce, which depend on the run's null but not on alpha (made on
+// first use; shared by the results re-thresholded from one run).
+type statTails struct {
+	logp, z []float64
+	perm    *permPs
+}
+
+type permPs struct {
+	mu sync.Mutex
+	p  map[permKey][]float64
+}
+
+// permKey names a cached map: a method's corrected p-values, or (log) their −log10.
+type permKey struct {
+	method infer.Method
+	log    bool
+}
+
+// get returns the cached map of key, computing it with make on first use.
+func (c *permPs) get(key permKey, make func() []float64) []float64 {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	if c.p[key] == nil {
+		c.p[key] = make()
+	}
+	return c.p[key]
 }
 
 // NullTable is the content of null_max.tsv.
@@ -293,9 +336,18 @@ func Group(ctx context.Context, in GroupInputs, opt GroupOptions) (*GroupResult,
 		models[i] = m
 	}
 
-	// The maps.
+	// The maps. They are held as float32 maps, from which the analysed voxels are copied
+	// once the mask is known (4·n·nvox + 4·n·nv bytes at the peak), or, when there is no mask
+	// file and the first map is non-zero at most of the grid's voxels (first-level maps hold
+	// 0 outside their masks, so most of the grid will be analysed), straight away as rows
+	// over the whole grid, compacted in place to the analysed voxels (4·n·nvox bytes, one
+	// allocation). The float32 values are the data: a model without nuisance columns keeps
+	// them as they are (group.Model.PrepareFloat32), others take float64 residuals from them
+	// (8·n·nv bytes more).
 	var grid nifti.Grid
 	var data [][]float32
+	var rows []float32 // n × nvox, row i = map i, when held as one array
+	nvox := 0
 	for i, mi := range in.Maps {
 		mh := newHashingReader(mi.R)
 		h, vol, err := nifti.ReadImage(mh, opt.Limits)
@@ -311,24 +363,48 @@ func Group(ctx context.Context, in GroupInputs, opt GroupOptions) (*GroupResult,
 		g := h.Grid()
 		if i == 0 {
 			grid = g
-			// Every map is held in memory (float32), then the analysed voxels as float64.
+			// At most 12 bytes per map voxel are held (see above).
 			if need := int64(n) * int64(g.Voxels()) * 12; need > maxGroupBytes {
 				return nil, inputErrf("--maps", "%d maps of %d voxels need %.1f GiB in memory; want at most %d GiB (fewer or smaller maps)", n, g.Voxels(), float64(need)/(1<<30), maxGroupBytes>>30)
+			}
+			nvox = g.Voxels()
+			nonZero := 0
+			for _, x := range vol[:min(len(vol), nvox)] {
+				if x != 0 {
+					nonZero++
+				}
+			}
+			if in.Mask == nil && 2*nonZero > nvox {
+				rows = make([]float32, n*nvox)
 			}
 		} else if !g.SameSpace(grid) {
 			return nil, inputErrf(mi.Name, "nifti: grid %v with affine %v differs from %s's %v with affine %v; want every map on the same grid", g.Dims, g.Affine, in.Maps[0].Name, grid.Dims, grid.Affine)
 		}
-		data = append(data, vol)
+		if len(vol) < nvox {
+			return nil, inputErrf(mi.Name, "nifti: %d values, want %d (the grid %v)", len(vol), nvox, g.Dims)
+		}
+		if rows != nil {
+			copy(rows[i*nvox:(i+1)*nvox], vol[:nvox])
+		} else {
+			data = append(data, vol[:nvox])
+		}
 		inputs = append(inputs, mh.ref("map", mi.Name))
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
 		opt.progress("reading maps", i+1, n)
 	}
-	nvox := grid.Voxels()
+	// val is map i's value at voxel v.
+	val := func(i, v int) float64 {
+		if rows != nil {
+			return float64(rows[i*nvox+v])
+		}
+		return float64(data[i][v])
+	}
 
 	// The mask: finite in every map; inside --mask, or non-zero in every map without one;
 	// and not the same value in every map.
+	opt.progress("masking", 0, 1)
 	var mask []bool
 	if in.Mask != nil {
 		mh := newHashingReader(in.Mask.R)
@@ -345,8 +421,8 @@ func Group(ctx context.Context, in GroupInputs, opt GroupOptions) (*GroupResult,
 		mask = make([]bool, nvox)
 		for v := range mask {
 			mask[v] = true
-			for _, d := range data {
-				if d[v] == 0 {
+			for i := range n {
+				if val(i, v) == 0 {
 					mask[v] = false
 					break
 				}
@@ -360,12 +436,14 @@ func Group(ctx context.Context, in GroupInputs, opt GroupOptions) (*GroupResult,
 			continue
 		}
 		ok, same := true, true
-		for _, d := range data {
-			if x := float64(d[v]); math.IsNaN(x) || math.IsInf(x, 0) {
+		x0 := val(0, v)
+		for i := range n {
+			x := val(i, v)
+			if math.IsNaN(x) || math.IsInf(x, 0) {
 				ok = false
 				break
 			}
-			if d[v] != data[0][v] {
+			if x != x0 {
 				same = false
 			}
 		}
@@ -391,14 +469,26 @@ func Group(ctx context.Context, in GroupInputs, opt GroupOptions) (*GroupResult,
 		warnings = append(warnings, fmt.Sprintf("%d voxels held non-finite values in some map and left the mask", nonFinite))
 	}
 	nv := len(voxels)
-	y := make([]float64, n*nv)
-	for i, d := range data {
-		row := y[i*nv : (i+1)*nv]
-		for k, v := range voxels {
-			row[k] = float64(d[v])
+	var y []float32
+	if rows != nil {
+		// In place: the destination i·nv+k never lies after the source i·nvox+v (k ≤ v,
+		// nv ≤ nvox), and every earlier write went to an earlier destination.
+		for i := range n {
+			for k, v := range voxels {
+				rows[i*nv+k] = rows[i*nvox+int(v)]
+			}
 		}
+		y, rows = rows[:n*nv], nil
+	} else {
+		y = make([]float32, n*nv)
+		for i, d := range data {
+			row := y[i*nv : (i+1)*nv]
+			for k, v := range voxels {
+				row[k] = d[v]
+			}
+		}
+		data = nil
 	}
-	data = nil
 	sp := group.Space{Dims: grid.Dims, Voxels: voxels}
 
 	st := &groupState{
@@ -417,10 +507,19 @@ func Group(ctx context.Context, in GroupInputs, opt GroupOptions) (*GroupResult,
 	}
 	res := &GroupResult{Grid: grid, shard: opt.Shard}
 	for i, m := range models {
-		prob := m.Prepare(y, sp)
+		opt.progress(fmt.Sprintf("fitting the model (%s)", cons[i].Name), 0, 1)
+		prob := m.PrepareFloat32(y, sp)
+		if i == len(models)-1 {
+			// The last model is prepared: the data are its problem's now, or garbage when it
+			// took residuals from them (the page's workers' memory never shrinks, so their
+			// peak is what counts; collecting now lets what follows reuse the data's place).
+			y = nil
+			runtime.GC()
+		}
 		if i == 0 {
 			// Smoothness of the full model's residuals (the same for every contrast).
-			st.FWHMVox = group.Smoothness(prob.Residuals(), n, sp, m.DF)
+			opt.progress("smoothness", 0, 1)
+			st.FWHMVox = prob.Smoothness()
 			st.Resels = infer.CountResels(mask, grid.Dims, st.FWHMVox)
 		}
 		pl, err := m.Plan(opt.Perms, *opt.Seed)
@@ -435,7 +534,8 @@ func Group(ctx context.Context, in GroupInputs, opt GroupOptions) (*GroupResult,
 			gc.DF1 = m.DF
 			gc.ClusterStat = dist.TFromLogSF(math.Log(opt.ClusterP), m.DF)
 		}
-		ropt := group.Options{Stats: stats, Cluster: gc.ClusterStat, Workers: opt.Workers}
+		ropt := group.Options{Stats: stats, Cluster: gc.ClusterStat, Workers: opt.Workers, Block: opt.Block}
+		opt.progress(fmt.Sprintf("observed statistic (%s)", gc.Name), 0, 1)
 		obs := prob.Observe(&pl, ropt)
 		gc.Stat = obs.Stat
 		if len(obs.Effect) == 1 {
@@ -518,6 +618,12 @@ func sliceOf(n, k, s int) (lo, hi int) {
 // finishGroup turns the state and the complete null into the result. One run and a merge of
 // shards both end here, with the same inputs, so their outputs are identical.
 func finishGroup(st *groupState, nulls []groupNull) (*GroupResult, error) {
+	return finishGroupWith(st, nulls, nil)
+}
+
+// finishGroupWith is finishGroup with the log p and z of st's contrasts when already known
+// (tails of a result with the same contrasts' statistics; nil: computed here).
+func finishGroupWith(st *groupState, nulls []groupNull, tails []statTails) (*GroupResult, error) {
 	grid := st.Grid
 	nvox := grid.Voxels()
 	mask := make([]bool, nvox)
@@ -537,7 +643,7 @@ func finishGroup(st *groupState, nulls []groupNull) (*GroupResult, error) {
 	}
 	des := &design.Design{X: mat.NewDense(n, p, append([]float64(nil), st.DesignX...)), Columns: cols}
 	fr := &FitResult{Summary: &sum, Grid: grid, Mask: mask, Design: des, voxels: st.Voxels, resels: st.Resels, fwhmVox: st.FWHMVox}
-	res := &GroupResult{Summary: &sum, Grid: grid, Mask: mask, Design: des, state: st, nulls: nulls}
+	res := &GroupResult{Summary: &sum, Grid: grid, Mask: mask, Design: des, state: st, nulls: nulls, ran: st, ranNulls: nulls}
 	method := st.Method
 	perm := permMethod(method)
 	if perm {
@@ -548,17 +654,25 @@ func finishGroup(st *groupState, nulls []groupNull) (*GroupResult, error) {
 	for ci := range st.Contrasts {
 		gc := &st.Contrasts[ci]
 		cs := &contrastState{name: gc.Name, spec: gc.Spec, f: gc.F, df1: gc.DF1, df2: gc.DF2, stat: gc.Stat}
-		cs.logp = make([]float64, len(cs.stat))
-		cs.z = make([]float64, len(cs.stat))
-		for k, s := range cs.stat {
-			if cs.f {
-				cs.logp[k] = dist.FLogSF(s, cs.df1, cs.df2)
-				cs.z[k] = dist.FToZ(s, cs.df1, cs.df2)
-			} else {
-				cs.logp[k] = dist.TLogSF(s, cs.df1)
-				cs.z[k] = dist.TToZ(s, cs.df1)
+		tl := statTails{perm: &permPs{p: map[permKey][]float64{}}}
+		if ci < len(tails) {
+			tl = tails[ci]
+			cs.logp, cs.z = tl.logp, tl.z
+		} else {
+			cs.logp = make([]float64, len(cs.stat))
+			cs.z = make([]float64, len(cs.stat))
+			for k, s := range cs.stat {
+				if cs.f {
+					cs.logp[k] = dist.FLogSF(s, cs.df1, cs.df2)
+					cs.z[k] = dist.FToZ(s, cs.df1, cs.df2)
+				} else {
+					cs.logp[k] = dist.TLogSF(s, cs.df1)
+					cs.z[k] = dist.TToZ(s, cs.df1)
+				}
 			}
 		}
+		tl.logp, tl.z = cs.logp, cs.z
+		res.tails = append(res.tails, tl)
 		fr.contrasts = append(fr.contrasts, cs)
 		kind, statKind, intent := "t", "t", 3
 		ip := [3]float64{cs.df1}
@@ -592,7 +706,7 @@ func finishGroup(st *groupState, nulls []groupNull) (*GroupResult, error) {
 		var pcorr []float64
 		if perm {
 			var w []string
-			pcorr, w = fr.permThreshold(cs, out, gc, nulls[ci], method, st.Alpha, st.ClusterP)
+			pcorr, w = fr.permThreshold(cs, out, gc, nulls[ci], method, st.Alpha, st.ClusterP, tl.perm)
 			warn = append(warn, w...)
 			if gc.TFCE != nil {
 				res.Maps = append(res.Maps, Map{File: gc.Name + "_tfce.nii.gz", Contrast: ci, Kind: "tfce", Data: fr.grid32(gc.TFCE), Write: nifti.WriteOptions{Descrip: "winnow TFCE (E 0.5, H 2, extent in voxels) " + gc.Name}})
@@ -608,12 +722,21 @@ func finishGroup(st *groupState, nulls []groupNull) (*GroupResult, error) {
 				thr[k] = s
 			}
 		}
-		logp := make([]float64, len(pcorr))
-		for k, pv := range pcorr {
-			logp[k] = -math.Log10(pv)
-			if logp[k] == 0 {
-				logp[k] = 0 // no −0 in the map
+		minusLog10 := func() []float64 {
+			logp := make([]float64, len(pcorr))
+			for k, pv := range pcorr {
+				logp[k] = -math.Log10(pv)
+				if logp[k] == 0 {
+					logp[k] = 0 // no −0 in the map
+				}
 			}
+			return logp
+		}
+		var logp []float64
+		if method == infer.MethodFWEPerm || method == infer.MethodTFCE {
+			logp = tl.perm.get(permKey{method, true}, minusLog10) // pcorr is the cached one
+		} else {
+			logp = minusLog10()
 		}
 		res.Maps = append(res.Maps,
 			Map{File: gc.Name + "_thresholded.nii.gz", Contrast: ci, Kind: "thresholded", Data: fr.grid32(thr), Write: nifti.WriteOptions{IntentCode: intent, IntentP: ip, Descrip: "winnow thresholded " + gc.Name}},
@@ -643,9 +766,110 @@ func finishGroup(st *groupState, nulls []groupNull) (*GroupResult, error) {
 	return res, nil
 }
 
+// Rethreshold infers a complete group result again under another method, alpha or
+// cluster-forming p without running the permutations again, and returns the result a new
+// run with those settings gives (the same summary, maps and null table; the run's seed and
+// number of relabellings). method MethodDefault, alpha 0 and clusterP 0 keep r's settings.
+// What can be done:
+//
+//   - the parametric methods (none, bonferroni, holm, fdr-bh, fdr-by, fwe-rft, cluster-rft),
+//     at any alpha and cluster-forming p, from any result: they need only the statistic map;
+//   - fwe-perm at any alpha from a run of any permutation method (each records the largest
+//     statistic of every relabelling);
+//   - tfce at any alpha from a tfce run (its null of the largest TFCE);
+//   - cluster-perm at any alpha from a cluster-perm run at the same cluster-forming p.
+//
+// cluster-perm at another cluster-forming p needs the largest cluster of every relabelling
+// at that p, and tfce or cluster-perm after a run that did not record them need their
+// maxima: those, and any permutation method after a parametric run, are an error that says
+// to run the analysis again. r itself is left as it is.
+func (r *GroupResult) Rethreshold(method infer.Method, alpha, clusterP float64) (*GroupResult, error) {
+	if r.IsShard() || r.ran == nil {
+		return nil, errors.New("analysis: Rethreshold of a group shard; want a complete result")
+	}
+	ran := r.ran
+	if method == infer.MethodDefault {
+		method = r.state.Method
+	}
+	if alpha == 0 {
+		alpha = r.state.Alpha
+	}
+	if clusterP == 0 {
+		clusterP = r.state.ClusterP
+	}
+	if err := checkLevels(alpha, clusterP); err != nil {
+		return nil, err
+	}
+	if !slices.Contains(infer.Methods(), method) {
+		return nil, inputErrf("--correct", "%s is unknown; want one of %s", method, strings.Join(methodNames(), ", "))
+	}
+	again := func(why string) error {
+		return inputErrf("--correct", "%s %s; run the group analysis again with these settings", method, why)
+	}
+	target := permMethod(method)
+	if target {
+		switch {
+		case !permMethod(ran.Method):
+			return nil, again(fmt.Sprintf("needs permutations, and this result was made with %s (no permutations)", ran.Method))
+		case method == infer.MethodTFCE && ran.Method != infer.MethodTFCE:
+			return nil, again(fmt.Sprintf("needs the largest TFCE of every relabelling, which the %s run did not record", ran.Method))
+		case method == infer.MethodClusterPerm && ran.Method != infer.MethodClusterPerm:
+			return nil, again(fmt.Sprintf("needs the largest cluster of every relabelling, which the %s run did not record", ran.Method))
+		case method == infer.MethodClusterPerm && clusterP != ran.ClusterP:
+			return nil, again(fmt.Sprintf("at cluster-forming p %g needs the largest cluster of every relabelling at that p; the run recorded them at p %g only", clusterP, ran.ClusterP))
+		}
+	}
+	st := *ran
+	st.Method, st.Alpha, st.ClusterP = method, alpha, clusterP
+	st.Contrasts = make([]groupContrast, len(ran.Contrasts))
+	for ci, gc := range ran.Contrasts {
+		// As Group sets them for a run with these settings.
+		if gc.F {
+			gc.ClusterStat = dist.FFromLogSF(math.Log(clusterP), gc.DF1, gc.DF2)
+		} else {
+			gc.ClusterStat = dist.TFromLogSF(math.Log(clusterP), gc.DF1)
+		}
+		if method != infer.MethodTFCE {
+			gc.TFCE = nil
+		}
+		st.Contrasts[ci] = gc
+	}
+	var nulls []groupNull
+	if target {
+		nulls = make([]groupNull, len(r.ranNulls))
+		for ci, nl := range r.ranNulls {
+			// Only the maxima a run of this method records.
+			keep := groupNull{Lo: nl.Lo, Hi: nl.Hi, Stat: nl.Stat}
+			switch method {
+			case infer.MethodTFCE:
+				keep.TFCE = nl.TFCE
+			case infer.MethodClusterPerm:
+				keep.Cluster = nl.Cluster
+			}
+			nulls[ci] = keep
+		}
+	}
+	// The contrasts' statistics are ran's, as are their log p and z.
+	out, err := finishGroupWith(&st, nulls, r.tails)
+	if err != nil {
+		return nil, err
+	}
+	out.ran, out.ranNulls = ran, r.ranNulls
+	return out, nil
+}
+
+// methodNames are the spellings of every correction method.
+func methodNames() []string {
+	var names []string
+	for _, m := range infer.Methods() {
+		names = append(names, m.String())
+	}
+	return names
+}
+
 // permThreshold applies a permutation method to one contrast. It returns the corrected p per
 // voxel and warnings.
-func (r *FitResult) permThreshold(cs *contrastState, out *report.Contrast, gc *groupContrast, null groupNull, method infer.Method, alpha, clusterP float64) ([]float64, []string) {
+func (r *FitResult) permThreshold(cs *contrastState, out *report.Contrast, gc *groupContrast, null groupNull, method infer.Method, alpha, clusterP float64, known *permPs) ([]float64, []string) {
 	var warn []string
 	m := len(cs.stat)
 	cs.survive = make([]bool, m)
@@ -665,8 +889,13 @@ func (r *FitResult) permThreshold(cs *contrastState, out *report.Contrast, gc *g
 			vals, maxima = gc.TFCE, null.TFCE
 		}
 		d := group.NewDistribution(maxima)
+		pcorr = known.get(permKey{method: method}, func() []float64 {
+			for k, s := range vals {
+				pcorr[k] = d.P(s)
+			}
+			return pcorr
+		})
 		for k, s := range vals {
-			pcorr[k] = d.P(s)
 			cs.survive[k] = pcorr[k] <= alpha && s > 0
 		}
 		if c, ok := d.Critical(alpha); ok {
@@ -1105,7 +1334,15 @@ func (t *NullTable) WriteTSV(w io.Writer) error {
 }
 
 func encodeState(st *groupState) ([]byte, string, error) {
+	// Room for the encoding at the outset (gob takes at most 9 bytes per float64 and 5 per
+	// int32): the buffer does not grow by doubling, which in a page worker, whose memory
+	// never shrinks, would raise the peak.
+	size := 4096 + 5*len(st.Voxels) + 9*len(st.DesignX)
+	for _, gc := range st.Contrasts {
+		size += 9 * (len(gc.Stat) + len(gc.Effect) + len(gc.TFCE))
+	}
 	var buf bytes.Buffer
+	buf.Grow(size)
 	if err := gob.NewEncoder(&buf).Encode(st); err != nil {
 		return nil, "", err
 	}

@@ -33,7 +33,13 @@ func (r *GroupResult) ShardBytes() ([]byte, error) {
 		return nil, err
 	}
 	sf := shardFile{Format: shardFormat, Shard: r.shard, Shards: r.state.Shards, Fingerprint: fp, State: b, Nulls: r.nulls}
+	// Room for the record at the outset (see encodeState).
+	size := 4096 + len(b)
+	for _, nl := range r.nulls {
+		size += 9 * (len(nl.Stat) + len(nl.Cluster) + len(nl.TFCE))
+	}
 	var buf bytes.Buffer
+	buf.Grow(size)
 	if err := gob.NewEncoder(&buf).Encode(&sf); err != nil {
 		return nil, err
 	}
@@ -401,4 +407,51 @@ func smoothAxis(x, tmp []float64, dims [3]int, a int) {
 		tmp[v] = s
 	}
 	copy(x, tmp)
+}
+
+// NullCheckText says a group result's null check (summary.null_check) for people: how
+// many of the first contrast's null sets (its relabellings: sign-flipped maps, or maps
+// relabelled by permuting the subjects) have a maximum beyond the threshold, e.g. "with
+// these settings, 250 of 5000 sign-flipped null sets exceed the threshold: about 5 %, 95 %
+// interval 4.4-5.6 %"; and a warning when the interval's lower bound lies above alpha (as
+// for a run's null check; by construction of the permutation threshold it should not).
+// Both are "" for a result without a null check (parametric methods).
+func (r *GroupResult) NullCheckText() (sentence, warning string) {
+	if r.Summary == nil || r.Summary.NullCheck == nil || r.state == nil || len(r.state.Contrasts) == 0 {
+		return "", ""
+	}
+	nc := r.Summary.NullCheck
+	sets := "sign-flipped null sets"
+	if r.state.Contrasts[0].Scheme != group.SignFlips.String() {
+		sets = "relabelled null sets (subjects permuted)"
+	}
+	verb := "exceed the threshold"
+	if nc.WithFindings == 1 {
+		verb = "exceeds the threshold"
+	}
+	sentence = fmt.Sprintf("with these settings, %d of %d %s %s: about %s %%, 95 %% interval %s-%s %%",
+		nc.WithFindings, nc.Designs, sets, verb, percentText(nc.FWEEstimate), percentText(nc.CI95[0]), percentText(nc.CI95[1]))
+	if nc.CI95[0] > r.state.Alpha {
+		warning = fmt.Sprintf("null check: %d of %d %s exceed the threshold (95 %% interval %s-%s %%), above alpha = %s %%; these settings do not control the familywise error here",
+			nc.WithFindings, nc.Designs, sets, percentText(nc.CI95[0]), percentText(nc.CI95[1]), percentText(r.state.Alpha))
+	}
+	return sentence, warning
+}
+
+// percentText writes a proportion as a percentage for people: whole numbers from 10 %,
+// one decimal below, "<0.1" for a positive value that would round to 0.
+func percentText(p float64) string {
+	v := 100 * p
+	switch {
+	case v == 0:
+		return "0"
+	case v >= 10:
+		return fmt.Sprintf("%.0f", v)
+	case v < 0.05:
+		return "<0.1"
+	}
+	if math.Abs(v-math.Round(v)) < 0.05 && v >= 1 {
+		return fmt.Sprintf("%.0f", v)
+	}
+	return fmt.Sprintf("%.1f", v)
 }

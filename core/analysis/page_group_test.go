@@ -4,6 +4,10 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"strings"
 	"testing"
 	"time"
 
@@ -159,5 +163,180 @@ func TestPageGroupDemo(t *testing.T) {
 	}
 	if v := mean[g.Index(0, 0, 0)]; v != 0 {
 		t.Errorf("mean outside the ellipsoid %v, want 0", v)
+	}
+}
+
+// sameGroupResult reports where two complete group results differ: the summary's
+// JSON text, the null table, and every map's name, kind and values (bit for bit).
+func sameGroupResult(t *testing.T, what string, got, want *GroupResult) {
+	t.Helper()
+	var a, b bytes.Buffer
+	got.WriteSummary(&a)
+	want.WriteSummary(&b)
+	if a.String() != b.String() {
+		t.Errorf("%s: summary differs:\n%s\nwant\n%s", what, a.String(), b.String())
+	}
+	if (got.NullMax == nil) != (want.NullMax == nil) {
+		t.Errorf("%s: null table %v, want %v", what, got.NullMax != nil, want.NullMax != nil)
+	} else if got.NullMax != nil {
+		a.Reset()
+		b.Reset()
+		got.NullMax.WriteTSV(&a)
+		want.NullMax.WriteTSV(&b)
+		if a.String() != b.String() {
+			t.Errorf("%s: null table differs", what)
+		}
+	}
+	if len(got.Maps) != len(want.Maps) {
+		t.Errorf("%s: %d maps, want %d", what, len(got.Maps), len(want.Maps))
+		return
+	}
+	for i, m := range want.Maps {
+		g := got.Maps[i]
+		if g.File != m.File || g.Kind != m.Kind || g.Contrast != m.Contrast || g.Write != m.Write {
+			t.Errorf("%s: map %d is %s (%s), want %s (%s)", what, i, g.File, g.Kind, m.File, m.Kind)
+			continue
+		}
+		for v := range m.Data {
+			if math.Float32bits(g.Data[v]) != math.Float32bits(m.Data[v]) {
+				t.Errorf("%s: %s differs at voxel %d: %v, want %v", what, m.File, v, g.Data[v], m.Data[v])
+				break
+			}
+		}
+	}
+}
+
+// TestGroupRethreshold: re-inferring a group result under new settings gives exactly
+// the result of a new run with those settings (identity: the permutation null does not
+// depend on alpha, and the parametric methods need only the statistic), and what needs
+// maxima the run did not record is refused with a message saying to run again.
+func TestGroupRethreshold(t *testing.T) {
+	names, files, err := DemoGroupFiles(2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	run := func(m infer.Method, alpha, clusterP float64) *GroupResult {
+		t.Helper()
+		r, err := Group(context.Background(), DemoGroupInputs(names, files), GroupOptions{Correct: m, Alpha: alpha, ClusterP: clusterP, Perms: 200, Workers: 1})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return r
+	}
+	type step struct {
+		m         infer.Method
+		alpha, cp float64
+	}
+	cases := []struct {
+		from  step
+		to    []step // applied in turn, each compared with a new run
+		wrong []step // refused
+	}{
+		{
+			from: step{infer.MethodTFCE, 0.05, 0.001},
+			to: []step{{infer.MethodTFCE, 0.01, 0.001}, {infer.MethodFWEPerm, 0.1, 0.001}, {infer.MethodFDRBH, 0.01, 0.001},
+				{infer.MethodFWERFT, 0.05, 0.001}, {infer.MethodClusterRFT, 0.05, 0.01}, {infer.MethodNone, 0.001, 0.001},
+				{infer.MethodTFCE, 0.02, 0.001}}, // back to tfce after other methods: the run's null is kept
+			wrong: []step{{infer.MethodClusterPerm, 0.05, 0.001}},
+		},
+		{
+			from:  step{infer.MethodClusterPerm, 0.05, 0.01},
+			to:    []step{{infer.MethodClusterPerm, 0.1, 0.01}, {infer.MethodFWEPerm, 0.05, 0.01}, {infer.MethodHolm, 0.05, 0.01}},
+			wrong: []step{{infer.MethodClusterPerm, 0.05, 0.001}, {infer.MethodTFCE, 0.05, 0.01}},
+		},
+		{
+			from:  step{infer.MethodFDRBH, 0.05, 0.001},
+			to:    []step{{infer.MethodFDRBH, 0.01, 0.001}, {infer.MethodBonferroni, 0.05, 0.001}, {infer.MethodFDRBY, 0.1, 0.001}},
+			wrong: []step{{infer.MethodFWEPerm, 0.05, 0.001}},
+		},
+	}
+	for _, c := range cases {
+		orig := run(c.from.m, c.from.alpha, c.from.cp)
+		var before bytes.Buffer
+		orig.WriteSummary(&before)
+		cur := orig
+		for _, s := range c.to {
+			what := fmt.Sprintf("%s at %g (p %g) -> %s at %g (p %g)", c.from.m, c.from.alpha, c.from.cp, s.m, s.alpha, s.cp)
+			re, err := cur.Rethreshold(s.m, s.alpha, s.cp)
+			if err != nil {
+				t.Errorf("%s: %v", what, err)
+				continue
+			}
+			sameGroupResult(t, what, re, run(s.m, s.alpha, s.cp))
+			// The log p and z of the run's statistics do not depend on the method or alpha:
+			// re-thresholding takes them over (what keeps it fast) rather than recomputing.
+			if len(re.tails) == 0 || len(orig.tails) == 0 || &re.tails[0].z[0] != &orig.tails[0].z[0] || &re.tails[0].logp[0] != &orig.tails[0].logp[0] {
+				t.Errorf("%s: the run's log p and z were computed again", what)
+			}
+			cur = re
+		}
+		for _, s := range c.wrong {
+			_, err := cur.Rethreshold(s.m, s.alpha, s.cp)
+			var ie *InputError
+			if !errors.As(err, &ie) || !strings.Contains(err.Error(), "run the group analysis again") {
+				t.Errorf("%s -> %s at p %g: error %v; want an input error saying to run again", c.from.m, s.m, s.cp, err)
+			}
+		}
+		var after bytes.Buffer
+		orig.WriteSummary(&after)
+		if before.String() != after.String() {
+			t.Errorf("%s: Rethreshold changed the result it started from", c.from.m)
+		}
+	}
+	// Bad levels are input errors naming the flag.
+	r := run(infer.MethodFWEPerm, 0.05, 0.001)
+	if _, err := r.Rethreshold(infer.MethodFWEPerm, 1.5, 0.001); err == nil || !strings.Contains(err.Error(), "--alpha") {
+		t.Errorf("alpha 1.5: %v; want an error naming --alpha", err)
+	}
+	// Zero settings keep the result's own (the page sends only what changed).
+	same, err := r.Rethreshold(infer.MethodDefault, 0, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	sameGroupResult(t, "fwe-perm rethresholded with zero settings", same, r)
+}
+
+// TestGroupNullCheckText: the group null check is worded as the relabellings it counts
+// (sign flips for a one-sample test, permuted subjects for two groups), with the numbers
+// of summary.null_check.
+func TestGroupNullCheckText(t *testing.T) {
+	names, files, err := DemoGroupFiles(2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := Group(context.Background(), DemoGroupInputs(names, files), GroupOptions{Perms: 200, Workers: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	nc := r.Summary.NullCheck
+	s, w := r.NullCheckText()
+	// Group's doc: with_findings of designs = N relabellings; the wording names sign flips
+	// (a one-sample test of the mean, methods notes: sign flipping).
+	want := fmt.Sprintf("with these settings, %d of 200 sign-flipped null sets ", nc.WithFindings)
+	if nc.Designs != 200 || !strings.HasPrefix(s, want) || strings.Contains(s, "chance design") || w != "" {
+		t.Errorf("one-sample null check %q, warning %q; want the prefix %q and no warning", s, w, want)
+	}
+	// Two groups: the subjects are permuted (Group's doc).
+	in := DemoGroupInputs(names, files)
+	var tsv strings.Builder
+	tsv.WriteString("group\n")
+	for i := range names {
+		tsv.WriteString([]string{"patient\n", "control\n"}[i%2])
+	}
+	in.Design = &Input{Name: "design.tsv", R: strings.NewReader(tsv.String())}
+	r2, err := Group(context.Background(), in, GroupOptions{Contrasts: []string{"d=patient - control"}, Perms: 200, Workers: 1})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s, _ := r2.NullCheckText(); !strings.Contains(s, "of 200 relabelled null sets (subjects permuted)") {
+		t.Errorf("two-group null check %q; want relabelled null sets", s)
+	}
+	// A parametric result has no null check and no sentence.
+	r3, err := r.Rethreshold(infer.MethodFDRBH, 0.05, 0.001)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s, w := r3.NullCheckText(); s != "" || w != "" || r3.Summary.NullCheck != nil {
+		t.Errorf("fdr-bh: null check %v, text %q %q; want none", r3.Summary.NullCheck, s, w)
 	}
 }

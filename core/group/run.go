@@ -41,9 +41,13 @@ type Problem struct {
 	M     *Model
 	Space Space
 	v     int
-	rz    []float64 // N×V residuals of the reduced model (the data when Z is empty)
-	ss    []float64 // per voxel Σ_i rz_i²
-	m0    []float64 // per voxel, the invariant coordinate (u_0'rz) when M.invariant
+	// The N×V residuals of the reduced model (the data when Z is empty): rz, or rz32 when the
+	// data were given as float32 and Z is empty (PrepareFloat32), read as float64 — the same
+	// values, in half the memory.
+	rz   []float64
+	rz32 []float32
+	ss   []float64 // per voxel Σ_i rz_i²
+	m0   []float64 // per voxel, the invariant coordinate (u_0'rz) when M.invariant
 	// ascending: Space.Voxels increase strictly (as documented), so a relabelling's voxels
 	// with t > 0 can go to the TFCE as a sparse list in index order.
 	ascending bool
@@ -52,28 +56,38 @@ type Problem struct {
 // Prepare applies the model to data y (N×V row-major: subject i's values at y[i*V:(i+1)*V],
 // V = len(sp.Voxels)). y is not modified or kept.
 func (m *Model) Prepare(y []float64, sp Space) *Problem {
-	v := len(sp.Voxels)
-	if len(y) != m.N*v {
-		panic(fmt.Sprintf("group: data has %d values, want %d subjects × %d voxels", len(y), m.N, v))
-	}
-	n := m.N
-	p := &Problem{M: m, Space: sp, v: v, rz: make([]float64, n*v), ss: make([]float64, v)}
+	p := m.newProblem(len(y), sp)
 	if m.resid == nil {
+		p.rz = make([]float64, len(y))
 		copy(p.rz, y)
 	} else {
-		for i := range n {
-			dst := p.rz[i*v : (i+1)*v]
-			for l := range n {
-				axpy(dst, m.resid[i*n+l], y[l*v:(l+1)*v])
-			}
-		}
+		p.rz = reduce(m, y, p.v)
 	}
-	for i := range n {
-		row := p.rz[i*v : (i+1)*v]
-		for k, x := range row {
-			p.ss[k] += x * x
-		}
+	p.sums()
+	return p
+}
+
+// PrepareFloat32 is Prepare for float32 data: the problem and its results are those of
+// Prepare on the same values as float64. Without a reduced model (Z empty: the model's
+// residuals are the data) the problem keeps y as its data instead of copying it, so y must not
+// change while the problem is in use; otherwise y is not kept.
+func (m *Model) PrepareFloat32(y []float32, sp Space) *Problem {
+	p := m.newProblem(len(y), sp)
+	if m.resid == nil {
+		p.rz32 = y
+	} else {
+		p.rz = reduce(m, y, p.v)
 	}
+	p.sums()
+	return p
+}
+
+func (m *Model) newProblem(ny int, sp Space) *Problem {
+	v := len(sp.Voxels)
+	if ny != m.N*v {
+		panic(fmt.Sprintf("group: data has %d values, want %d subjects × %d voxels", ny, m.N, v))
+	}
+	p := &Problem{M: m, Space: sp, v: v}
 	p.ascending = true
 	for k := 1; k < v; k++ {
 		if sp.Voxels[k] <= sp.Voxels[k-1] {
@@ -81,14 +95,50 @@ func (m *Model) Prepare(y []float64, sp Space) *Problem {
 			break
 		}
 	}
+	return p
+}
+
+// reduce returns the reduced-model residuals (I − P_Z) y, N×V.
+func reduce[T float](m *Model, y []T, v int) []float64 {
+	n := m.N
+	rz := make([]float64, n*v)
+	for i := range n {
+		dst := rz[i*v : (i+1)*v]
+		for l := range n {
+			axpyOf(dst, m.resid[i*n+l], y[l*v:(l+1)*v])
+		}
+	}
+	return rz
+}
+
+// sums computes ss and m0 from the residuals.
+func (p *Problem) sums() {
+	if p.rz32 != nil {
+		sumsOf(p, p.rz32)
+	} else {
+		sumsOf(p, p.rz)
+	}
+}
+
+func sumsOf[T float](p *Problem, rz []T) {
+	m, n, v := p.M, p.M.N, p.v
+	p.ss = make([]float64, v)
+	for i := range n {
+		row := rz[i*v : (i+1)*v]
+		for k, x := range row {
+			p.ss[k] += float64(x) * float64(x)
+		}
+	}
 	if m.invariant {
 		p.m0 = make([]float64, v)
 		for i := range n {
-			axpy(p.m0, m.u[i*m.r], p.rz[i*v:(i+1)*v])
+			axpyOf(p.m0, m.u[i*m.r], rz[i*v:(i+1)*v])
 		}
 	}
-	return p
 }
+
+// float is the element type of the residuals: float64, or float32 data read as float64.
+type float interface{ float32 | float64 }
 
 func axpy(dst []float64, a float64, x []float64) {
 	x = x[:len(dst)]
@@ -97,11 +147,25 @@ func axpy(dst []float64, a float64, x []float64) {
 	}
 }
 
+// axpyOf is axpy for either element type of the residuals.
+func axpyOf[T float](dst []float64, a float64, x []T) {
+	x = x[:len(dst)]
+	for k := range dst {
+		dst[k] += a * float64(x[k])
+	}
+}
+
 // Options set what Run records.
 type Options struct {
 	Stats   Stats
 	Cluster float64 // cluster-forming threshold on the statistic's scale (t, or F), for MaxCluster
 	Workers int     // 0: runtime.NumCPU()
+	// Block is the most relabellings a worker computes together (0: the default, 32 under
+	// sign flips, 8 otherwise). Results do not depend on it; a sign-flip block shares its
+	// pattern tables (faster with more), while TFCE without clusters holds each relabelling's
+	// voxels > 0 until the block's end (5 bytes per such voxel: about 2.5·V bytes per
+	// relabelling).
+	Block int
 	// Exceed, with Observed set, counts per voxel the relabellings whose statistic reaches the
 	// observed one (for uncorrected permutation p-values).
 	Exceed   bool
@@ -163,6 +227,9 @@ func (p *Problem) Run(ctx context.Context, pl *Plan, lo, hi int, opt Options) (*
 	blockSize := 8
 	if p.M.Scheme == SignFlips {
 		blockSize = flipBlock
+	}
+	if opt.Block > 0 {
+		blockSize = opt.Block
 	}
 	nb := (hi - lo + blockSize - 1) / blockSize
 	nw = max(1, min(nw, nb))
@@ -249,11 +316,15 @@ type worker struct {
 	st    []float64 // chunk: the statistic
 	num   []float64 // Q × chunk: statistic numerators
 	grids [][]float32
-	// With sparse, a relabelling's grid is its voxels with t > 0 alone: sidx their linear
-	// indices (ascending) and sval their values (see flipT).
+	// With sparse, a relabelling's grid is its voxels with t > 0 alone, in index order:
+	// sval their values, spos their places within their flipSub voxels and scnt how many
+	// there are in each flipSub voxels (5 bytes a voxel, held for the whole block; see
+	// flipT), from which sidx, shared, takes their grid indices for the TFCE.
 	sparse bool
-	sidx   [][]int32
 	sval   [][]float32
+	spos   [][]uint8
+	scnt   [][]uint16
+	sidx   []int32
 	tfce   *cluster.TFCEWorkspace
 	inBuf  []bool
 	max    []Maxima
@@ -263,6 +334,7 @@ type worker struct {
 	noSkip bool      // compute every voxel's statistic (see skipOK)
 	full   *worker   // made on first use by fullMaxStat
 	pos    []int32   // flipSub: positions of the voxels computed (flipT)
+	conv   []float64 // N × flipSub: float32 data as float64 (flipTables)
 
 	// Sign flips: per group of up to flipGroup subjects, a table of the partial sums of every
 	// sign pattern (see flipSums).
@@ -281,6 +353,9 @@ const (
 )
 
 const chunk = 2048
+
+// A voxel's place within its flipSub voxels is a uint8 (spos); chunks hold whole flipSubs.
+const _ = uint8(flipSub-1) + uint8(chunk%flipSub)
 
 func (p *Problem) newWorker(nb int, opt Options) *worker {
 	m := p.M
@@ -315,11 +390,8 @@ func (p *Problem) newWorker(nb int, opt Options) *worker {
 		opt.Stats&MaxCluster == 0 && !(opt.Exceed && opt.Observed != nil)
 	switch {
 	case w.sparse:
-		w.sidx, w.sval = make([][]int32, nb), make([][]float32, nb)
-		for b := range nb {
-			w.sidx[b] = make([]int32, 0, p.v/2+1)
-			w.sval[b] = make([]float32, 0, p.v/2+1)
-		}
+		// The lists are made on first use (the observed map's worker uses none).
+		w.sval, w.spos, w.scnt = make([][]float32, nb), make([][]uint8, nb), make([][]uint16, nb)
 	case opt.Stats&(MaxCluster|MaxTFCE) != 0:
 		w.grids = make([][]float32, nb)
 		for b := range w.grids {
@@ -396,7 +468,12 @@ func (w *worker) block(labs []Relabelling) {
 	sparse := w.sparse && skip
 	if sparse {
 		for b := range nb {
-			w.sidx[b], w.sval[b] = w.sidx[b][:0], w.sval[b][:0]
+			if w.sval[b] == nil {
+				w.sval[b] = make([]float32, 0, p.v/2+1)
+				w.spos[b] = make([]uint8, 0, p.v/2+1)
+				w.scnt[b] = make([]uint16, (p.v+flipSub-1)/flipSub)
+			}
+			w.sval[b], w.spos[b] = w.sval[b][:0], w.spos[b][:0]
 		}
 	}
 	for c0 := 0; c0 < p.v && fused; c0 += chunk {
@@ -412,7 +489,11 @@ func (w *worker) block(labs []Relabelling) {
 			for row := range nb * rows {
 				o := w.out[row*chunk : row*chunk+cl]
 				clear(o)
-				dotRows(o, w.coef[row*n:(row+1)*n], p.rz, p.v, c0)
+				if p.rz32 != nil {
+					dotRows(o, w.coef[row*n:(row+1)*n], p.rz32, p.v, c0)
+				} else {
+					dotRows(o, w.coef[row*n:(row+1)*n], p.rz, p.v, c0)
+				}
 			}
 		}
 		ss := p.ss[c0:c1]
@@ -504,7 +585,7 @@ func (w *worker) block(labs []Relabelling) {
 			// The maximum alone (no map): every relabelling, the identity included, takes it
 			// through the same arithmetic, so the identity's maximum is the observed one.
 			if sparse {
-				w.max[b].TFCE = cluster.TFCEMaxSparse(w.tfce, w.sidx[b], w.sval[b], TFCEE, TFCEH)
+				w.max[b].TFCE = cluster.TFCEMaxSparse(w.tfce, w.sparseIndices(b), w.sval[b], TFCEE, TFCEH)
 			} else {
 				w.max[b].TFCE = cluster.TFCEMaxTail(w.tfce, grid, TFCEE, TFCEH, cluster.TailPositive)
 			}
@@ -521,6 +602,23 @@ func (w *worker) block(labs []Relabelling) {
 			}
 		}
 	}
+}
+
+// sparseIndices returns the grid indices of relabelling b's listed voxels (in w.sidx).
+func (w *worker) sparseIndices(b int) []int32 {
+	vox := w.p.Space.Voxels
+	idx := w.sidx[:0]
+	sp := w.spos[b]
+	k := 0
+	for s, c := range w.scnt[b] {
+		base := s * flipSub
+		for _, q := range sp[k : k+int(c)] {
+			idx = append(idx, vox[base+int(q)])
+		}
+		k += int(c)
+	}
+	w.sidx = idx
+	return idx
 }
 
 // skipOK reports whether relabellings may leave out the statistic of voxels where it is ≤ 0
@@ -587,7 +685,8 @@ func (w *worker) flipT(nb, c0, cl int, skip, sparse bool) {
 					}
 					q += inc
 				}
-				idx, val := w.sidx[b], w.sval[b]
+				sp, val := w.spos[b], w.sval[b]
+				n0 := len(val)
 				for _, v := range pos[:q] {
 					x := o[v]
 					num := kc * x
@@ -600,11 +699,12 @@ func (w *worker) flipT(nb, c0, cl int, skip, sparse bool) {
 						mx = t
 					}
 					if f := float32(t); f > 0 {
-						idx = append(idx, vx[v])
+						sp = append(sp, uint8(v))
 						val = append(val, f)
 					}
 				}
-				w.sidx[b], w.sval[b] = idx, val
+				w.spos[b], w.sval[b] = sp, val
+				w.scnt[b][v0/flipSub] = uint16(len(val) - n0)
 			case skip && grid != nil:
 				for v, x := range o {
 					num := kc * x
@@ -760,7 +860,29 @@ func (w *worker) flipSums(nb, c0, cl int) {
 // flipTables fills the pattern tables of coordinate k0 + kk for voxels v0..v0+sl (sl ≤
 // flipSub): tab[((kk·G + g)·np + pattern)·flipSub + v].
 func (w *worker) flipTables(kk, v0, sl int) {
-	p, m := w.p, w.p.M
+	p := w.p
+	if p.rz32 == nil {
+		w.flipTablesOf(p.rz, p.v, v0, kk, sl)
+		return
+	}
+	// float32 data: the voxels' rows as float64 first (the same values), so that the
+	// table loops are those of float64 data.
+	n := p.M.N
+	if w.conv == nil {
+		w.conv = make([]float64, n*flipSub)
+	}
+	for i := range n {
+		dst := w.conv[i*flipSub : i*flipSub+sl]
+		for v, x := range p.rz32[i*p.v+v0 : i*p.v+v0+sl] {
+			dst[v] = float64(x)
+		}
+	}
+	w.flipTablesOf(w.conv, flipSub, 0, kk, sl)
+}
+
+// flipTablesOf fills the tables from residual rows rz[i·stride + v0 : … + sl].
+func (w *worker) flipTablesOf(rz []float64, stride, v0, kk, sl int) {
+	m := w.p.M
 	n, r, G := m.N, m.r, w.ngrp
 	k := r - w.rows + kk
 	const np = 1 << flipGroup
@@ -772,12 +894,12 @@ func (w *worker) flipTables(kk, v0, sl int) {
 		clear(t0)
 		for j := range gs {
 			i := i0 + j
-			axpy(t0, m.u[i*r+k], p.rz[i*p.v+v0:i*p.v+v0+sl])
+			axpy(t0, m.u[i*r+k], rz[i*stride+v0:i*stride+v0+sl])
 		}
 		for j := range gs {
 			i := i0 + j
 			a := -2 * m.u[i*r+k]
-			x := p.rz[i*p.v+v0 : i*p.v+v0+sl]
+			x := rz[i*stride+v0 : i*stride+v0+sl]
 			for q := range 1 << j {
 				src := w.tab[base+q*flipSub : base+q*flipSub+sl]
 				dst := w.tab[base+(q|1<<j)*flipSub : base+(q|1<<j)*flipSub+sl]
@@ -870,7 +992,7 @@ func (m *Model) classRep() []int {
 }
 
 // dotRows adds Σ_i a[i]·rz[i*V + c0 : i*V + c0 + len(o)] to o, four rows at a time.
-func dotRows(o, a, rz []float64, V, c0 int) {
+func dotRows[T float](o, a []float64, rz []T, V, c0 int) {
 	n := len(a)
 	cl := len(o)
 	i := 0
@@ -886,7 +1008,7 @@ func dotRows(o, a, rz []float64, V, c0 int) {
 		a0, a1, a2, a3 := a[i], a[i+1], a[i+2], a[i+3]
 		a4, a5, a6, a7 := a[i+4], a[i+5], a[i+6], a[i+7]
 		for v := range o {
-			o[v] += (a0*r0[v] + a1*r1[v] + a2*r2[v] + a3*r3[v]) + (a4*r4[v] + a5*r5[v] + a6*r6[v] + a7*r7[v])
+			o[v] += (a0*float64(r0[v]) + a1*float64(r1[v]) + a2*float64(r2[v]) + a3*float64(r3[v])) + (a4*float64(r4[v]) + a5*float64(r5[v]) + a6*float64(r6[v]) + a7*float64(r7[v]))
 		}
 	}
 	for ; i+4 <= n; i += 4 {
@@ -896,14 +1018,14 @@ func dotRows(o, a, rz []float64, V, c0 int) {
 		r3 := rz[(i+3)*V+c0 : (i+3)*V+c0+cl]
 		a0, a1, a2, a3 := a[i], a[i+1], a[i+2], a[i+3]
 		for v := range o {
-			o[v] += a0*r0[v] + a1*r1[v] + a2*r2[v] + a3*r3[v]
+			o[v] += a0*float64(r0[v]) + a1*float64(r1[v]) + a2*float64(r2[v]) + a3*float64(r3[v])
 		}
 	}
 	for ; i < n; i++ {
 		r := rz[i*V+c0 : i*V+c0+cl]
 		ai := a[i]
 		for v := range o {
-			o[v] += ai * r[v]
+			o[v] += ai * float64(r[v])
 		}
 	}
 }

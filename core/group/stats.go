@@ -58,21 +58,154 @@ func (d Distribution) Above(u float64) int {
 
 // Residuals returns the full-model residuals, N×V row-major: rz − U(U'rz).
 func (p *Problem) Residuals() []float64 {
-	m := p.M
-	n, r, v := m.N, m.r, p.v
+	n, v := p.M.N, p.v
 	res := make([]float64, n*v)
-	copy(res, p.rz)
-	coord := make([]float64, v)
-	for k := range r {
-		clear(coord)
-		for i := range n {
-			axpy(coord, m.u[i*r+k], p.rz[i*v:(i+1)*v])
-		}
-		for i := range n {
-			axpy(res[i*v:(i+1)*v], -m.u[i*r+k], coord)
-		}
+	coord := p.coords()
+	for i := range n {
+		p.residualRow(res[i*v:(i+1)*v], i, coord)
 	}
 	return res
+}
+
+// coords returns the coordinates U'rz of the residuals, r×V.
+func (p *Problem) coords() []float64 {
+	if p.rz32 != nil {
+		return coordsOf(p, p.rz32)
+	}
+	return coordsOf(p, p.rz)
+}
+
+func coordsOf[T float](p *Problem, rz []T) []float64 {
+	m := p.M
+	n, r, v := m.N, m.r, p.v
+	coord := make([]float64, r*v)
+	for k := range r {
+		c := coord[k*v : (k+1)*v]
+		for i := range n {
+			axpyOf(c, m.u[i*r+k], rz[i*v:(i+1)*v])
+		}
+	}
+	return coord
+}
+
+// residualRow sets dst to subject i's full-model residuals, rz_i − Σ_k u_ik·coord_k, the
+// coordinates subtracted in order k = 0, 1, ….
+func (p *Problem) residualRow(dst []float64, i int, coord []float64) {
+	m, v := p.M, p.v
+	if p.rz32 != nil {
+		for k, x := range p.rz32[i*v : (i+1)*v] {
+			dst[k] = float64(x)
+		}
+	} else {
+		copy(dst, p.rz[i*v:(i+1)*v])
+	}
+	for k := range m.r {
+		axpy(dst, -m.u[i*m.r+k], coord[k*v:(k+1)*v])
+	}
+}
+
+// Smoothness is Smoothness(p.Residuals(), N, p.Space, ν) — the same arithmetic in the same
+// order, so the same result — without holding the N×V residuals: they are made again per
+// chunk of voxels (with the voxels up to one z step beyond, where the chunk's neighbours lie)
+// from the data and the coordinates U'rz.
+func (p *Problem) Smoothness() [3]float64 {
+	m := p.M
+	n, v := m.N, p.v
+	sp := p.Space
+	if !p.ascending {
+		return Smoothness(p.Residuals(), n, sp, m.DF)
+	}
+	dims := sp.Dims
+	coord := p.coords()
+	pos := voxelPositions(sp)
+	// A neighbour of voxel k (ascending grid indices) lies at most dims[0]·dims[1] places on.
+	const step = 4096
+	span := min(v, step+dims[0]*dims[1])
+	slab := make([]float64, n*span) // voxel-major: slab[(k−k0)·n + i]
+	row := make([]float64, span)
+	fill := func(k0 int) int {
+		w := min(span, v-k0)
+		for i := range n {
+			r := row[:w]
+			if p.rz32 != nil {
+				for k, x := range p.rz32[i*v+k0 : i*v+k0+w] {
+					r[k] = float64(x)
+				}
+			} else {
+				copy(r, p.rz[i*v+k0:i*v+k0+w])
+			}
+			for c := range m.r {
+				axpy(r, -m.u[i*m.r+c], coord[c*v+k0:c*v+k0+w])
+			}
+			for k, x := range r {
+				slab[k*n+i] = x
+			}
+		}
+		return w
+	}
+	inv := make([]float64, v)
+	for k0 := 0; k0 < v; k0 += step {
+		fill(k0)
+		for k := k0; k < min(v, k0+step); k++ {
+			s := 0.0
+			for _, x := range slab[(k-k0)*n : (k-k0+1)*n] {
+				s += x * x
+			}
+			if s > 0 {
+				s = 1 / math.Sqrt(s)
+			}
+			inv[k] = s
+		}
+	}
+	stride := [3]int{1, dims[0], dims[0] * dims[1]}
+	var sum [3]float64
+	var pairs [3]int
+	for k0 := 0; k0 < v; k0 += step {
+		fill(k0)
+		for k := k0; k < min(v, k0+step); k++ {
+			c := int(sp.Voxels[k])
+			coord := [3]int{c % dims[0], c / dims[0] % dims[1], c / (dims[0] * dims[1])}
+			a := slab[(k-k0)*n : (k-k0+1)*n]
+			for ax := range 3 {
+				if coord[ax]+1 >= dims[ax] {
+					continue
+				}
+				w := int(pos[c+stride[ax]])
+				if w < 0 || inv[k] == 0 || inv[w] == 0 {
+					continue
+				}
+				b := slab[(w-k0)*n : (w-k0+1)*n]
+				corr := 0.0
+				for i, x := range a {
+					corr += x * b[i]
+				}
+				sum[ax] += 2 * (1 - corr*inv[k]*inv[w])
+				pairs[ax]++
+			}
+		}
+	}
+	var out [3]float64
+	for ax := range 3 {
+		if pairs[ax] == 0 {
+			out[ax] = math.NaN()
+			continue
+		}
+		out[ax] = fwhmFromD(sum[ax]/float64(pairs[ax]), m.DF)
+	}
+	return out
+}
+
+// voxelPositions returns, per grid voxel, its index among sp.Voxels (−1 outside).
+func voxelPositions(sp Space) []int32 {
+	dims := sp.Dims
+	pos := make([]int32, dims[0]*dims[1]*dims[2])
+	for i := range pos {
+		pos[i] = -1
+	}
+	for k, g := range sp.Voxels {
+		pos[g] = int32(k)
+	}
+	return pos
 }
 
 // Smoothness estimates the FWHM in voxels per axis of the field whose N realisations are res
