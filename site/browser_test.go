@@ -459,6 +459,13 @@ func TestServedDemo(t *testing.T) {
 	if native.Summary.Motion == nil {
 		t.Error("native realigned summary has no motion block")
 	}
+	// The form shows the settings of a run started from script (so "Apply"
+	// and Fit start from what is shown).
+	form := eval[string](t, b, `[document.getElementById("realign").checked, document.getElementById("correct").value,
+	    document.getElementById("contrasts").value].join("|")`)
+	if want := "true|fdr-bh|" + spec; form != want {
+		t.Errorf("form after analyze({realign: true, correct: fdr-bh}) shows %q, want %q", form, want)
+	}
 	if hidden := eval[bool](t, b, `document.getElementById("motion-box").hidden`); hidden {
 		t.Error("motion plot hidden after a realigned fit")
 	} else if ms := eval[canvasCount](t, b, plotStats("motion")); ms.Drawn < ms.W*ms.H/50 {
@@ -779,4 +786,130 @@ type rethresholdTiming struct {
 type gunzipInfo struct {
 	Bytes int
 	Ms    float64
+}
+
+// The parallel read (a second worker inflates the run and posts it to the
+// fit worker, protocol.js: inflate, boldPort) must give exactly what one
+// worker gives: the same summary and the same map bytes, both equal to the
+// native pipeline's on the same files (one pipeline, two platforms). The
+// run holds 20 MiB of decompressed data, so the pipe's 1 MiB chunks and its
+// window of 8 are exercised. Progress is reported during the parallel
+// read, and a cancel ends the fit and the reader worker's job: the page
+// fits again afterwards.
+func TestParallelRead(t *testing.T) {
+	needBrowser(t)
+	if testing.Short() {
+		t.Skip("large generated run")
+	}
+	res := site(t)
+	bold, events := largeRun(t)
+	os.WriteFile(filepath.Join(res.Dir, "par-bold.nii.gz"), bold, 0o644)
+	os.WriteFile(filepath.Join(res.Dir, "par-events.tsv"), events, 0o644)
+	// A copy cut short inside the gzip stream, for the error path.
+	os.WriteFile(filepath.Join(res.Dir, "par-cut.nii.gz"), bold[:len(bold)*2/3], 0o644)
+	srv := httptest.NewServer(sitebuild.Handler(res.Dir, res.Policy))
+	defer srv.Close()
+	spec := "a-b=a - b"
+	native, err := analysis.Fit(context.Background(), analysis.FitInputs{
+		Bold:   analysis.Input{Name: "bold.nii.gz", R: bytes.NewReader(bold), Size: int64(len(bold))},
+		Events: analysis.Input{Name: "events.tsv", R: bytes.NewReader(events), Size: int64(len(events))},
+	}, analysis.FitOptions{Contrasts: []string{spec}})
+	if err != nil {
+		t.Fatal(err)
+	}
+
+	b := newBrowser(t, 4*time.Minute)
+	if err := chromedp.Do(b.ctx, chromedp.Navigate(srv.URL+"/")); err != nil {
+		t.Fatal(err)
+	}
+	eval[string](t, b, `window.winnow.ready.then(r => r.version)`)
+	eval[bool](t, b, `(async () => {
+	  const get = (n) => fetch(n).then(r => r.blob());
+	  window.__par = {bold: new File([await get("par-bold.nii.gz")], "bold.nii.gz"), cut: new File([await get("par-cut.nii.gz")], "bold.nii.gz"),
+	    events: await (await get("par-events.tsv")).text()};
+	  return true; })()`)
+
+	type fitOut struct {
+		Summary, MapSHA string
+		Workers         int
+		Progress        []string
+		Ms              float64
+	}
+	// fit runs analyze with the given workers, noting the progress texts
+	// shown meanwhile, and hashes the exported z map (SHA-256 in the page).
+	fit := func(workers int) fitOut {
+		return eval[fitOut](t, b, fmt.Sprintf(`(async () => {
+		  const seen = new Set(), el = document.getElementById("progress-text");
+		  const poll = setInterval(() => seen.add(el.textContent), 10);
+		  const p = window.__par, t0 = performance.now();
+		  let s;
+		  try {
+		    s = await window.winnow.analyze({bold: p.bold, events: p.events, contrasts: [%q], workers: %d});
+		  } finally { clearInterval(poll); }
+		  const ms = performance.now() - t0;
+		  const f = await window.winnow.exportFile("map:a-b_z.nii.gz");
+		  const buf = await (await fetch(f.url)).arrayBuffer();
+		  const sha = Array.from(new Uint8Array(await crypto.subtle.digest("SHA-256", buf)), (x) => x.toString(16).padStart(2, "0")).join("");
+		  return {summary: JSON.stringify(s), mapSHA: sha, workers: window.winnow.timings.fitWorkers, progress: Array.from(seen), ms};
+		})()`, spec, workers))
+	}
+	one := fit(1)
+	two := fit(2)
+	t.Logf("FIGURE analyze() of the large run (%d bytes gzip): one worker %.0f ms, two workers %.0f ms", len(bold), one.Ms, two.Ms)
+	if one.Workers != 1 || two.Workers != 2 {
+		t.Fatalf("workers used: %d and %d, want 1 and 2 (a gzip run, DecompressionStream present)", one.Workers, two.Workers)
+	}
+	// Identical results: the page's one-worker path is the reference.
+	if one.Summary != two.Summary {
+		t.Errorf("summaries differ between one and two workers:\n one %.400s\n two %.400s", one.Summary, two.Summary)
+	}
+	if one.MapSHA != two.MapSHA || len(one.MapSHA) != 64 {
+		t.Errorf("z map bytes differ: SHA-256 %s with one worker, %s with two", one.MapSHA, two.MapSHA)
+	}
+	// Both against the native pipeline, provenance (size and SHA-256 of
+	// the compressed file, measured by the reader worker) included.
+	compareSummaries(t, two.Summary, native.Summary)
+	reading := false
+	for _, p := range two.Progress {
+		if strings.HasPrefix(p, "reading and accumulating: ") && !strings.HasSuffix(p, " 40 of 40") {
+			reading = true
+		}
+	}
+	if !reading {
+		t.Errorf("progress texts during the parallel read %q, want a partial \"reading and accumulating: N of 40\"", two.Progress)
+	}
+
+	// A run cut short: one line naming the file, through the reader worker.
+	cut := eval[string](t, b, fmt.Sprintf(`window.winnow.analyze({bold: window.__par.cut, events: window.__par.events, contrasts: [%q], workers: 2})
+	  .then(() => "resolved", (e) => e.message)`, spec))
+	if !strings.HasPrefix(cut, "bold.nii.gz: ") || strings.Contains(cut, "\n") || len(cut) > 300 {
+		t.Errorf("truncated run through the reader worker: %q, want one line naming bold.nii.gz", cut)
+	}
+	t.Logf("truncated run: %s", cut)
+
+	// Cancel during the parallel read: the fit ends well within the five
+	// seconds after which the page would restart the worker, and the next
+	// parallel fit (same reader worker) gives the same result again.
+	canceled := eval[string](t, b, fmt.Sprintf(`(async () => {
+	  const until = (f) => new Promise((res, rej) => { const t0 = Date.now();
+	    (function w() { if (f()) res(); else if (Date.now() - t0 > 60000) rej(new Error("timed out")); else setTimeout(w, 10); })(); });
+	  const p = window.__par;
+	  document.getElementById("progress-text").textContent = ""; // the last fit's text
+	  const run = window.winnow.analyze({bold: p.bold, events: p.events, contrasts: [%q], workers: 2}).then(() => "resolved", (e) => e.message);
+	  await until(() => document.getElementById("progress-text").textContent.startsWith("reading"));
+	  const t0 = performance.now();
+	  document.getElementById("cancel").click();
+	  const out = await run;
+	  return out + " after " + Math.round(performance.now() - t0) + " ms; " + document.getElementById("status").textContent;
+	})()`, spec))
+	var ms int
+	if _, err := fmt.Sscanf(canceled, "canceled after %d ms; Canceled.", &ms); err != nil || ms >= 4000 {
+		t.Errorf("cancel during the parallel read: %q, want \"canceled after N ms; Canceled.\" with N < 4000", canceled)
+	}
+	t.Logf("cancel: %s", canceled)
+	again := fit(2)
+	if again.Summary != one.Summary || again.MapSHA != one.MapSHA {
+		t.Errorf("the parallel fit after a cancel differs from the one-worker fit")
+	}
+	b.check(t, srv.URL+"/", "data:", "blob:")
 }

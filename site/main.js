@@ -107,11 +107,11 @@ function onWorkerMessage(msg) {
 // request sends one message and resolves with its result message. A fit
 // (the default) becomes the request the Cancel button ends; side requests
 // (series, export) do not.
-function request(kind, fields, progress, side = false) {
+function request(kind, fields, progress, side = false, transfer = []) {
   const id = nextId++;
   const p = new Promise((resolve, reject) => {
     pending.set(id, { resolve, reject, progress });
-    worker.postMessage(message(id, kind, fields));
+    worker.postMessage(message(id, kind, fields), transfer);
   });
   if (!side) current = id;
   p.id = id;
@@ -128,7 +128,12 @@ let restarted = false; // the worker was restarted to end a fit
 function cancel() {
   const id = current;
   const p = pending.get(id);
-  if (!p) return;
+  if (!p) {
+    if (busy) cancelWanted = true; // an analyze not sent yet (analyzeRequest)
+    return;
+  }
+  // A parallel read's reader worker ends when the fit worker closes the
+  // pipe (or, after a restart, when analyzeRequest cleans up).
   worker.postMessage(message(nextId++, Kind.cancel, { target: id }));
   stopHelpers(); // shards in helper workers end with them
   setTimeout(() => {
@@ -140,6 +145,108 @@ function cancel() {
     p.reject(new Error("canceled"));
     startWorker();
   }, 5000);
+}
+
+// ---- parallel read of a run: a second worker inflates ---------------------
+
+// reader is a second worker that, during analyze, slices the run's Blob,
+// hashes it and inflates it, and posts the decompressed bytes over a
+// MessageChannel straight to the fit worker (protocol.js: inflate,
+// boldPort), so decoding and accumulating overlap inflating. Started once
+// the main worker is ready, where the browser reports two or more logical
+// processors; with one, the fit worker reads the run itself.
+let reader = null; // {worker, ready: Promise}
+let readerJob = 0; // id of the running inflate request
+let cancelWanted = false; // Cancel was pressed before the analyze request went out
+
+function fitWorkers() {
+  return (navigator.hardwareConcurrency || 1) >= 2 ? 2 : 1;
+}
+
+function startReader() {
+  let ok, fail;
+  const r = { ready: new Promise((a, b) => { ok = a; fail = b; }), isReady: false };
+  r.ready.then(() => { r.isReady = true; }, () => {});
+  let w;
+  if (workerSrc) {
+    w = new Worker(URL.createObjectURL(new Blob([workerSrc.textContent], { type: "text/javascript" })));
+    inflateWasm().then((buf) => w.postMessage({ kind: Kind.boot, wasm: buf }, [buf]), (err) => fail(err));
+  } else {
+    w = new Worker("worker.js");
+    w.postMessage({ kind: Kind.boot, url: new URL("winnow.wasm", location.href).href });
+  }
+  w.onmessage = (e) => {
+    const msg = e.data;
+    if (!msg || msg.v !== 1) return;
+    if (msg.kind === Kind.ready) return ok();
+    const p = pending.get(msg.id);
+    if (!p) {
+      if (msg.id === 0 && msg.kind === Kind.error) fail(new Error(msg.message));
+      return;
+    }
+    if (msg.kind === Kind.result || msg.kind === Kind.error) {
+      pending.delete(msg.id);
+      if (msg.kind === Kind.result) p.resolve(msg);
+      else p.reject(new Error(msg.message));
+    }
+  };
+  w.onerror = (e) => {
+    e.preventDefault();
+    fail(new Error("the reader worker failed: " + (e.message || "unknown error")));
+    if (reader === r) reader = null;
+  };
+  r.worker = w;
+  reader = r;
+  return r;
+}
+
+// gzipBlob reports whether a Blob starts with the gzip magic bytes 1f 8b
+// (RFC 1952) and is long enough to hold a gzip stream.
+async function gzipBlob(b) {
+  if (b.size < 18) return false;
+  const m = new Uint8Array(await b.slice(0, 2).arrayBuffer());
+  return m[0] === 0x1f && m[1] === 0x8b;
+}
+
+// analyzeRequest sends an analyze request; with workers = 2 and a gzip
+// run it goes the parallel way, else to the fit worker alone. By default a
+// reader worker still booting is not waited for (the fit starts at once in
+// one worker); asked for explicitly (wait), it is. It resolves with the
+// result message and the number of workers used.
+async function analyzeRequest(fields, workers, wait) {
+  cancelWanted = false;
+  const parallel = workers >= 2 && fields.inflate !== "wasm" && typeof DecompressionStream === "function" &&
+    typeof MessageChannel === "function" && (await gzipBlob(fields.bold));
+  let r = null;
+  if (parallel) {
+    r = reader || startReader();
+    if (!r.isReady && !wait) r = null;
+    try {
+      if (r) await r.ready;
+    } catch (err) {
+      r = null; // no second worker: the fit worker reads the run itself
+    }
+  }
+  if (cancelWanted) throw new Error("canceled");
+  if (!r) return { msg: await request(Kind.analyze, fields, onProgress), workers: 1 };
+  const ch = new MessageChannel();
+  const rid = nextId++;
+  const inflated = new Promise((resolve, reject) => pending.set(rid, { resolve, reject }));
+  inflated.catch(() => {}); // a failure reaches the fit through the port
+  readerJob = rid;
+  r.worker.postMessage(message(rid, Kind.inflate, { blob: fields.bold, port: ch.port1 }), [ch.port1]);
+  try {
+    return { msg: await request(Kind.analyze, { ...fields, boldPort: ch.port2 }, onProgress, false, [ch.port2]), workers: 2 };
+  } finally {
+    cancelReaderJob();
+  }
+}
+
+// cancelReaderJob ends the reader's running inflate, if any.
+function cancelReaderJob() {
+  const id = readerJob;
+  readerJob = 0;
+  if (id && pending.has(id) && reader) reader.worker.postMessage(message(nextId++, Kind.cancel, { target: id }));
 }
 
 // ---- group mode: shards over more workers -----------------------------------
@@ -227,6 +334,10 @@ async function runGroup(fields, n) {
   const t0 = performance.now();
   const parametric = !["fwe-perm", "cluster-perm", "tfce"].includes(fields.correct || "fwe-perm");
   if (parametric) n = 1; // no permutations to share
+  // steps: when each step ended, ms from the call, and the workers' own
+  // stage times (for the benchmark harness).
+  const steps = { workers: [] };
+  timings.groupSteps = steps;
   try {
     let msg;
     if (n === 1) {
@@ -234,12 +345,21 @@ async function runGroup(fields, n) {
     } else {
       while (helpers.length < n - 1) startHelper();
       await Promise.all(helpers.slice(0, n - 1).map((h) => h.ready));
+      steps.helpersReady = performance.now() - t0;
       const first = request(Kind.group, { ...fields, shard: 1, shards: n }, onProgress);
       const rest = helpers.slice(0, n - 1).map((h, i) => requestOn(h.worker, Kind.group, { ...fields, shard: i + 2, shards: n }));
       const parts = await Promise.all([first, ...rest]);
+      // The helpers' work is done: ending them returns their memory (a
+      // worker's WebAssembly memory never shrinks); the next run starts
+      // them again.
+      stopHelpers();
+      steps.shards = performance.now() - t0;
+      steps.workers = parts.map((p) => p.timing || null);
       setStatus("Merging the shards\u2026");
       msg = await request(Kind.groupMerge, { ...fields, shards: parts.map((p) => p.shard) }, onProgress);
     }
+    steps.result = performance.now() - t0;
+    steps.worker = msg.timing || null;
     result = {
       summary: JSON.parse(msg.summary),
       dims: msg.dims, voxelMM: msg.voxelMM, affine: msg.affine,
@@ -255,7 +375,9 @@ async function runGroup(fields, n) {
       view.selected = 0;
     }
     await showResult();
+    showGroupSettings();
     const ms = performance.now() - t0;
+    steps.shown = ms;
     timings.groupMs = ms;
     timings.groupWorkers = n;
     setStatus(`Done in ${(ms / 1000).toFixed(1)} s on ${n} worker${n > 1 ? "s" : ""}.`);
@@ -302,6 +424,58 @@ function group(opts = {}) {
     fields.backgroundName = opts.background.name || "background.nii.gz";
   }
   return runGroup(fields, opts.workers);
+}
+
+// showGroupSettings puts the shown group result's inference settings into
+// the group form, so that changing one of them starts from what is shown.
+function showGroupSettings() {
+  const c = result.summary.contrasts[0];
+  if (!c) return;
+  $("g-correct").value = c.correction;
+  $("g-alpha").value = String(c.alpha);
+  if (c.cluster_p) $("g-cluster-p").value = String(c.cluster_p);
+}
+
+// groupRethreshold infers the shown group result again under {correct,
+// alpha, clusterP} without running the permutations again: the parametric
+// methods at any settings, fwe-perm and tfce at a new alpha from the
+// recorded null maxima. What needs a new run (cluster-perm at another
+// cluster-forming p, a method whose maxima the run did not record) is
+// refused with the worker's message saying so. Resolves with {ms, workerMs,
+// go, summary}, ms from the request to the redrawn views.
+async function groupRethreshold(fields) {
+  if (!result || result.mode !== "group") throw new Error("no group result to rethreshold yet");
+  if (busy) throw new Error("an analysis is already running");
+  const t0 = performance.now();
+  showError("");
+  setBusy(true);
+  try {
+    const msg = await request(Kind.group, { rethreshold: true, correct: fields.correct, alpha: fields.alpha, clusterP: fields.clusterP }, onProgress);
+    result.summary = JSON.parse(msg.summary);
+    result.hist = msg.hist;
+    result.nullHist = msg.nullHist || [];
+    result.nullCheck = msg.nullCheck || null;
+    for (const m of msg.maps) {
+      const i = result.maps.findIndex((x) => x.contrast === m.contrast && x.kind === m.kind);
+      if (i >= 0) result.maps[i] = m;
+      else result.maps.push(m);
+    }
+    view.selected = -1;
+    const tReply = performance.now();
+    const drawn = await showResult(true);
+    showGroupSettings();
+    const ms = drawn - t0;
+    timings.groupRethresholdMs = ms;
+    const c = result.summary.contrasts[0];
+    setStatus(`Re-thresholded with ${c.correction} at alpha ${c.alpha}, without new permutations, in ${Math.round(ms)} ms.`);
+    setState("done");
+    return { ms, workerMs: tReply - t0, go: msg.timing || null, summary: result.summary };
+  } catch (err) {
+    showError(err.message);
+    throw err;
+  } finally {
+    setBusy(false);
+  }
 }
 
 function setMode(mode) {
@@ -360,6 +534,15 @@ function wireGroup() {
   $("g-demo").addEventListener("click", () => {
     group({ ...groupSettingsFromForm(), demo: true, background: groupFiles.background || undefined }).catch(() => {});
   });
+  // The inference settings re-infer a shown group result at once (the
+  // relabellings, seed and contrasts need a new run).
+  for (const id of ["g-correct", "g-alpha", "g-cluster-p"]) {
+    $(id).addEventListener("change", () => {
+      if (!result || result.mode !== "group" || busy) return;
+      const s = groupSettingsFromForm();
+      groupRethreshold({ correct: s.correct, alpha: s.alpha, clusterP: s.clusterP }).catch(() => {});
+    });
+  }
 }
 
 // ---- page state -----------------------------------------------------------
@@ -375,7 +558,7 @@ let seriesReq = null; // the running series request, for cancel
 // rethresholdMs runs from the request to the views redrawn (canvas calls
 // done); rethresholdWorkerMs to the worker's reply; rethresholdPaintedMs to
 // the second animation frame after the redraw.
-const timings = { fitMs: null, rethresholdMs: null, rethresholdWorkerMs: null, rethresholdPaintedMs: null, kind: null };
+const timings = { fitMs: null, fitWorkers: null, rethresholdMs: null, rethresholdWorkerMs: null, rethresholdPaintedMs: null, kind: null };
 
 function setState(s) {
   document.body.dataset.state = s;
@@ -426,7 +609,7 @@ function settingsFromForm() {
 
 // run sends a fit (analyze or demo) and shows its result; it resolves with
 // the summary once the views have drawn.
-async function run(kind, fields) {
+async function run(kind, fields, workers = 1, wait = false) {
   await ready;
   if (busy) throw new Error("an analysis is already running");
   stopSeries();
@@ -436,7 +619,15 @@ async function run(kind, fields) {
   setStatus(kind === Kind.demo ? "Generating and fitting the demo run\u2026" : "Fitting\u2026");
   const t0 = performance.now();
   try {
-    const msg = await request(kind, fields, onProgress);
+    let msg;
+    if (kind === Kind.analyze) {
+      const r = await analyzeRequest(fields, workers, wait);
+      msg = r.msg;
+      timings.fitWorkers = r.workers;
+    } else {
+      msg = await request(kind, fields, onProgress);
+      timings.fitWorkers = 1;
+    }
     result = {
       summary: JSON.parse(msg.summary),
       dims: msg.dims, voxelMM: msg.voxelMM, affine: msg.affine,
@@ -481,7 +672,9 @@ async function rethreshold(fields) {
   const t0 = performance.now();
   stopSeries();
   showError("");
-  setBusy(true);
+  // Busy without the progress bar: a re-threshold takes a frame or two, and
+  // showing the bar would only make the page lay out and paint meanwhile.
+  busy = true;
   try {
     const msg = await request(Kind.rethreshold, fields, onProgress);
     result.summary = JSON.parse(msg.summary);
@@ -528,7 +721,9 @@ let bgRange = null;
 function prepareOverlay() {
   const z = mapOf(view.contrast, "z");
   const th = mapOf(view.contrast, "thresholded");
-  overlay = new Float32Array(z ? z.length : 0);
+  const n = z ? z.length : 0;
+  if (!overlay || overlay.length !== n) overlay = new Float32Array(n);
+  else overlay.fill(0);
   let lo = Infinity, hi = 0, pos = false, neg = false;
   if (z && th) {
     for (let i = 0; i < z.length; i++) {
@@ -558,6 +753,11 @@ function sizeCanvas(c) {
 let ov = null;
 
 function drawSlices() {
+  paintSlices();
+  showReadout();
+}
+
+function paintSlices() {
   const c = $("slices");
   const dpr = sizeCanvas(c);
   view.geom = slices.render(
@@ -568,6 +768,10 @@ function drawSlices() {
     },
     { bgRange, overlayRange: [ov.lo, ov.hi], dpr },
   );
+}
+
+// showReadout writes the cursor's position and values under the slices.
+function showReadout() {
   const [i, j, k] = view.cursor;
   const idx = i + result.dims[0] * (j + result.dims[1] * k);
   const w = slices.world(result.affine, view.cursor);
@@ -585,19 +789,8 @@ function drawSlices() {
 function drawAll(partial = false) {
   ov = prepareOverlay();
   drawSlices();
-  const lc = $("legend");
-  const dpr = sizeCanvas(lc);
-  legendView.render(lc, ov.any ? { lo: ov.lo, hi: ov.hi, label: "z", positive: ov.pos, negative: ov.neg } : null, { dpr });
-  const con = result.summary.contrasts[view.contrast];
-  clusterView.render($("clusters"), { clusters: con.clusters, kind: con.kind, correction: con.correction }, {
-    selected: view.selected,
-    onSelect: (i) => {
-      view.selected = i;
-      view.cursor = con.clusters[i].peak_ijk.slice();
-      drawAll();
-      requestSeries();
-    },
-  });
+  drawLegend();
+  showClusters();
   drawHistogram();
   drawNull();
   if (partial) return;
@@ -625,6 +818,25 @@ function drawAll(partial = false) {
   }
 }
 
+function drawLegend() {
+  const lc = $("legend");
+  const dpr = sizeCanvas(lc);
+  legendView.render(lc, ov.any ? { lo: ov.lo, hi: ov.hi, label: "z", positive: ov.pos, negative: ov.neg } : null, { dpr });
+}
+
+function showClusters() {
+  const con = result.summary.contrasts[view.contrast];
+  clusterView.render($("clusters"), { clusters: con.clusters, kind: con.kind, correction: con.correction }, {
+    selected: view.selected,
+    onSelect: (i) => {
+      view.selected = i;
+      view.cursor = con.clusters[i].peak_ijk.slice();
+      drawAll();
+      requestSeries();
+    },
+  });
+}
+
 function drawHistogram() {
   const h = (result.hist || []).find((x) => x.contrast === view.contrast);
   const c = $("histogram");
@@ -650,7 +862,7 @@ function showNullCheck() {
   el.classList.remove("alert", "stale");
   if (nc) {
     const text = nc.sentence + ".";
-    el.textContent = (result.mode === "group" ? "Null check (relabellings of the first contrast): " : "Null check: ") + text;
+    el.textContent = (result.mode === "group" ? "Null check (first contrast): " : "Null check: ") + text;
     if (nc.warning) {
       const w = document.createElement("strong");
       w.textContent = "Warning \u2014 " + nc.warning + ".";
@@ -821,9 +1033,20 @@ function describe(s, con) {
   return parts.join("  \u00b7  ");
 }
 
-// showResult fills the result panel and resolves after the browser has
-// painted it.
+// showResult fills the result panel (partial: only what a re-threshold
+// changes) at once, and resolves with the time the drawing ended once the
+// browser has painted it: after the next frame's callbacks and paint (a task
+// queued from requestAnimationFrame runs after that frame's rendering).
 async function showResult(partial = false) {
+  if (partial) showInference();
+  else fillResult();
+  const drawn = performance.now();
+  await new Promise((r) => requestAnimationFrame(() => setTimeout(r, 0)));
+  return drawn;
+}
+
+// fillResult fills the whole result panel.
+function fillResult() {
   $("empty-note").hidden = true;
   $("results").hidden = false;
   const s = result.summary;
@@ -836,18 +1059,55 @@ async function showResult(partial = false) {
     pickEl.appendChild(o);
   });
   pickEl.value = String(view.contrast);
-  // The inference fields show the settings of the result on screen.
-  const shown = s.contrasts[view.contrast];
-  if (shown && result.mode !== "group") {
-    $("correct").value = shown.correction;
-    $("alpha").value = String(shown.alpha);
-    if (shown.cluster_p) $("cluster-p").value = String(shown.cluster_p);
-  }
-  $("facts").textContent = describe(s, s.contrasts[view.contrast]);
+  showSettings();
   $("outline-note").hidden = !result.truth;
   showNullCheck();
   fillExportMaps();
-  const warnings = s.warnings || [];
+  showWarnings();
+  bgRange = slices.displayRange(mapOf(-1, "mean"), result.mask);
+  drawAll();
+}
+
+// showInference shows a re-thresholded result: the canvases first, while
+// the page's layout is still clean (reading their sizes forces none), then
+// the text and the cluster table.
+function showInference() {
+  ov = prepareOverlay();
+  paintSlices();
+  drawLegend();
+  drawHistogram();
+  drawNull();
+  showReadout();
+  showClusters();
+  showSettings();
+  showNullCheck();
+  showWarnings();
+}
+
+// showSettings shows the inference settings of the result on screen in the
+// form's fields, and the result's facts.
+function showSettings() {
+  const s = result.summary;
+  const shown = s.contrasts[view.contrast];
+  if (shown && result.mode !== "group") {
+    // Only changed values are set: setting a select restyles it.
+    const set = (id, v) => {
+      if ($(id).value !== v) $(id).value = v;
+    };
+    set("correct", shown.correction);
+    set("alpha", String(shown.alpha));
+    if (shown.cluster_p) set("cluster-p", String(shown.cluster_p));
+  }
+  $("facts").textContent = describe(s, shown);
+}
+
+let shownWarnings = null; // the warnings on screen, joined
+
+function showWarnings() {
+  const warnings = result.summary.warnings || [];
+  const key = warnings.join("\n");
+  if (key === shownWarnings) return;
+  shownWarnings = key;
   $("warnings").textContent = "";
   for (const w of warnings) {
     const li = document.createElement("li");
@@ -855,11 +1115,6 @@ async function showResult(partial = false) {
     $("warnings").appendChild(li);
   }
   $("warnings-box").hidden = warnings.length === 0;
-  if (!partial) bgRange = slices.displayRange(mapOf(-1, "mean"), result.mask);
-  drawAll(partial);
-  const drawn = performance.now();
-  await new Promise((r) => requestAnimationFrame(() => requestAnimationFrame(r)));
-  return drawn;
 }
 
 // ---- inputs ---------------------------------------------------------------
@@ -988,7 +1243,35 @@ function analyze(opts) {
     fields.mask = opts.mask;
     fields.maskName = name(opts.mask, "mask.nii.gz");
   }
-  return run(Kind.analyze, fields);
+  // workers: 1 reads the run in the fit worker; 2 inflates a gzip run in a
+  // second worker (the default where the browser reports two or more
+  // logical processors; by default a fit started while that worker still
+  // boots runs in one). The result is the same either way.
+  const workers = opts.workers === undefined ? fitWorkers() : Math.max(1, Math.min(2, Math.floor(Number(opts.workers)) || 1));
+  formFromFields(fields);
+  return run(Kind.analyze, fields, workers, opts.workers !== undefined);
+}
+
+// formFromFields puts the settings of a run started from script into the
+// form, so that the form describes the shown result and a later "Apply" or
+// Fit starts from them. Fields left out keep the form's value.
+function formFromFields(f) {
+  const set = (id, v) => {
+    const el = $(id);
+    if (!el || v === undefined || v === null || (typeof v === "number" && !Number.isFinite(v))) return;
+    if (el.type === "checkbox") el.checked = !!v;
+    else if (String(el.value) !== String(v)) el.value = String(v);
+  };
+  if (Array.isArray(f.contrasts) && f.contrasts.length) set("contrasts", f.contrasts.join("\n"));
+  set("correct", f.correct);
+  set("alpha", f.alpha);
+  set("cluster-p", f.clusterP);
+  set("smooth", f.smooth);
+  set("highpass", f.highpass);
+  set("noise", f.noise);
+  set("tr", f.tr);
+  set("realign", f.realign);
+  set("null-check", f.nullCheck);
 }
 
 window.winnow = Object.freeze({
@@ -996,14 +1279,20 @@ window.winnow = Object.freeze({
   analyze,
   group,
   // demo runs the built-in synthetic scenario; opts as analyze without files and contrasts.
-  demo: (opts = {}) => run(Kind.demo, { ...opts, seed: opts.seed ?? 1 }),
+  demo: (opts = {}) => {
+    const fields = { ...opts, seed: opts.seed ?? 1 };
+    formFromFields({ ...fields, nullCheck: !!(opts.nullCheck ?? opts.null_check), realign: !!opts.realign, contrasts: undefined });
+    return run(Kind.demo, fields);
+  },
   // rethreshold re-infers the shown result: {correct, alpha, clusterP}; it
   // resolves with {ms, summary}, ms from the request to the redrawn views.
-  rethreshold: (opts = {}) => rethreshold({ correct: opts.correct, alpha: opts.alpha, clusterP: opts.clusterP ?? opts.cluster_p }),
+  // A shown group result is re-inferred from its recorded null (groupRethreshold).
+  rethreshold: (opts = {}) => (result && result.mode === "group" ? groupRethreshold : rethreshold)({ correct: opts.correct, alpha: opts.alpha, clusterP: opts.clusterP ?? opts.cluster_p }),
   // summary is the summary the page shows now, or null.
   summary: () => (result ? JSON.parse(JSON.stringify(result.summary)) : null),
   // timings of the last fit (fitMs: from the request to the drawn views;
-  // kind: "analyze" or "demo") and the last rethreshold (rethresholdMs).
+  // kind: "analyze" or "demo"; fitWorkers: 2 when a second worker inflated
+  // the run) and the last rethreshold (rethresholdMs).
   timings,
   // exportFile(key) makes a file as the Save buttons do, without
   // downloading it: {name, url (blob:), size, type}.
@@ -1030,3 +1319,5 @@ wireInputs();
 wireGroup();
 startWorker();
 ready.then(() => setBusy(false), () => {});
+// The reader worker of the parallel read boots once the page is usable.
+ready.then(() => { if (fitWorkers() >= 2 && !reader) startReader(); }, () => {});

@@ -23,6 +23,10 @@
 //                nullCheck?: boolean (40 chance designs).
 //                inflate?: "stream" | "wasm" (how a gzip run is inflated: the
 //                browser's DecompressionStream, the default, or the Go decoder).
+//                boldPort?: MessagePort (transferred): the decompressed run
+//                arrives on it from a reader worker (inflate, below) instead
+//                of being read from bold, which still names the file and is
+//                read again for a series.
 //                An absent or zero number means the documented default.
 //   demo         seed: number, and the settings of analyze except the files
 //                and contrasts: the built-in synthetic scenario is generated
@@ -36,6 +40,13 @@
 //   export       what: "map" (with index into the result's files),
 //                "clusters", "summary", "report", "design" or "motion":
 //                one file of the last result, encoded by the Go pipeline.
+//   inflate      blob: Blob (gzip), port: MessagePort (transferred): sent to a
+//                second worker, the reader, for the parallel read of a run.
+//                It slices the Blob, hashes it (SHA-256) and inflates it with
+//                DecompressionStream, and posts on port the port messages
+//                below; the page sends the other end of the channel to the
+//                fit worker as analyze's boldPort. Reply: result with bytes
+//                (compressed size) and sha256, or error.
 //   gunzip       blob: Blob, how: "stream" | "wasm": inflate a gzip Blob to
 //                the end and report the time (a benchmark hook).
 //   group        maps: Blob[], mapNames: string[] (one 3D effect map per
@@ -48,6 +59,13 @@
 //                none, bonferroni, holm, fdr-bh, fdr-by, fwe-rft), perms,
 //                seed, alpha, clusterP; shard, shards (K of N, 1-based:
 //                only that slice of the relabellings; the reply is a shard).
+//                Or rethreshold: true with correct, alpha, clusterP (absent:
+//                those shown) and no files: infer the worker's last complete
+//                group result again without new permutations; the reply is a
+//                group result with partial: true (summary, thresholded maps,
+//                hist, nullHist, nullCheck, timing: {rethreshold}), or an
+//                error that ends "run the group analysis again" where the
+//                recorded null cannot answer (cluster-perm at a new p).
 //   groupMerge   the fields of group (the maps are read again for the mean
 //                background) and shards: Uint8Array[] (every shard's
 //                bytes): the result one unsharded run gives.
@@ -93,12 +111,26 @@
 //                Float64Array, n, threshold: number | null, observed,
 //                exceed}] (the permutation null of the maximum; absent under
 //                parametric methods).
+//                Group and shard results carry timing: stage start times,
+//                ms, and the worker's Go memory, MB.
 //   nullCheck    (in every full result) {sentence, warning: string} or null:
 //                the summary's null_check in words and, when its interval's
 //                lower bound is above alpha, the warning ("" otherwise).
 //   error        message: string, one line, the text of the Go error.
 //
 // Typed arrays in a result are transferred, not copied.
+//
+// Port messages (reader worker <-> fit worker, on the MessagePort of
+// inflate and boldPort; plain objects without v, id or kind)
+//
+//   reader -> fit  chunk: Uint8Array (the next decompressed bytes, at most
+//                  1 MiB, its buffer transferred); end: true, bytes: number,
+//                  sha256: string (the compressed file's size and hash, after
+//                  the last chunk); or error: string (one line; the fit ends
+//                  with it).
+//   fit -> reader  credit: true (one chunk consumed: the reader keeps at most
+//                  8 chunks unanswered); close: true (the fit stopped reading,
+//                  for an error or a cancel: the reader's job ends).
 
 export const VERSION = 1;
 
@@ -110,6 +142,7 @@ export const Kind = Object.freeze({
   series: "series",
   export: "export",
   gunzip: "gunzip",
+  inflate: "inflate",
   group: "group",
   groupMerge: "groupMerge",
   cancel: "cancel",

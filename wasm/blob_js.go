@@ -183,8 +183,10 @@ func startPromise(p js.Value) *promise {
 	})
 	pr.bad = js.FuncOf(func(_ js.Value, a []js.Value) any {
 		msg := "rejected"
-		if len(a) > 0 {
-			msg = a[0].Call("toString").String()
+		if len(a) > 0 && present(a[0]) {
+			// String(reason): a reason may be any value (a stream
+			// canceled without one rejects its reads with undefined).
+			msg = js.Global().Call("String", a[0]).String()
 		}
 		pr.ch <- outcome{err: errors.New(msg)}
 		return nil
@@ -300,8 +302,8 @@ func (t *inflateTee) Read(p []byte) (int, error) {
 
 // Ref is the compressed file's size and SHA-256, once Read has returned
 // io.EOF.
-func (t *inflateTee) Ref() (int64, string) {
-	return t.n, hex.EncodeToString(t.h.Sum(nil))
+func (t *inflateTee) Ref() (int64, string, error) {
+	return t.n, hex.EncodeToString(t.h.Sum(nil)), nil
 }
 
 // isGzip reports whether the Blob starts with the gzip magic bytes 1f 8b

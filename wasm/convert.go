@@ -5,6 +5,7 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"unsafe"
 
 	"gonum.org/v1/gonum/mat"
 
@@ -169,8 +170,13 @@ func viewMaps(maps []analysis.Map, partial bool) []analysis.Map {
 }
 
 // float32Bytes is src as little-endian IEEE 754 bytes, the memory layout of
-// a JS Float32Array on every platform that runs WebAssembly.
+// a JS Float32Array on every platform that runs WebAssembly. On a
+// little-endian machine it is src's own memory, not a copy: the callers only
+// read it (copying it into a JS array at once).
 func float32Bytes(src []float32) []byte {
+	if littleEndian && len(src) > 0 {
+		return unsafe.Slice((*byte)(unsafe.Pointer(&src[0])), 4*len(src))
+	}
 	b := make([]byte, 4*len(src))
 	for i, v := range src {
 		binary.LittleEndian.PutUint32(b[4*i:], math.Float32bits(v))
@@ -178,14 +184,22 @@ func float32Bytes(src []float32) []byte {
 	return b
 }
 
-// float64Bytes is src as little-endian IEEE 754 bytes (a Float64Array).
+// float64Bytes is src as little-endian IEEE 754 bytes (a Float64Array); on
+// a little-endian machine, src's own memory.
 func float64Bytes(src []float64) []byte {
+	if littleEndian && len(src) > 0 {
+		return unsafe.Slice((*byte)(unsafe.Pointer(&src[0])), 8*len(src))
+	}
 	b := make([]byte, 8*len(src))
 	for i, v := range src {
 		binary.LittleEndian.PutUint64(b[8*i:], math.Float64bits(v))
 	}
 	return b
 }
+
+// littleEndian is true where the machine's byte order is little-endian
+// (WebAssembly's always is).
+var littleEndian = binary.NativeEndian.Uint16([]byte{1, 0}) == 1
 
 // boolBytes is 1 for true and 0 for false (a Uint8Array).
 func boolBytes(src []bool) []byte {

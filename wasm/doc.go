@@ -9,7 +9,9 @@
 // The message protocol is documented in protocol.go and, in the same words,
 // in site/protocol.js. Files arrive as Blob objects and are read through an
 // io.Reader that slices the Blob in 4 MiB chunks with the worker-only
-// FileReaderSync, so a run is never held whole in JS memory.
+// FileReaderSync, so a run is never held whole in JS memory. A gzip run
+// may instead arrive decompressed from a second worker over a MessagePort
+// (the parallel read, pipe_js.go).
 //
 // The glue that touches syscall/js is in files tagged js && wasm; the
 // conversions beside it are plain Go, covered by host tests.

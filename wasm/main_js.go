@@ -69,21 +69,33 @@ func handle(msg js.Value) {
 	case KindAnalyze:
 		in, err := decodeInputs(msg)
 		if err != nil {
+			if port := msg.Get("boldPort"); present(port) && port.InstanceOf(js.Global().Get("MessagePort")) {
+				newPortReader(port).Close() // the reader worker's job ends
+			}
 			postError(id, err)
 			return
 		}
 		// A gzip run is inflated by the browser (DecompressionStream),
 		// several times faster than the Go decoder under WebAssembly
-		// (measured in site/browser_test.go), unless inflate is "wasm".
-		var tee *inflateTee
-		if bold := msg.Get("bold"); stringField(msg, "inflate") != "wasm" && isGzip(bold) {
-			tee = newInflateTee(bold)
+		// (measured in site/browser_test.go), unless inflate is "wasm":
+		// in a second worker that posts the bytes on boldPort (the page's
+		// parallel path), else here.
+		var pipe *portReader
+		if port := msg.Get("boldPort"); present(port) && port.InstanceOf(js.Global().Get("MessagePort")) {
+			pipe = newPortReader(port)
+			in.Bold.R = pipe
+			in.Bold.Provenance = pipe.Ref
+		} else if bold := msg.Get("bold"); stringField(msg, "inflate") != "wasm" && isGzip(bold) {
+			tee := newInflateTee(bold)
 			in.Bold.R = tee
 			in.Bold.Provenance = tee.Ref
 		}
 		s := decodeSettings(msg)
 		reopen := reopener(msg)
 		start(id, func(ctx context.Context, progress func(string, int, int)) (*analysis.FitResult, []float32, error) {
+			if pipe != nil {
+				defer pipe.Close()
+			}
 			opt, err := s.FitOptions()
 			if err != nil {
 				return nil, nil, err
@@ -198,6 +210,20 @@ func handle(msg js.Value) {
 			arr, buf := typedArray("Uint8Array", b)
 			post(map[string]any{"v": ProtocolVersion, "id": id, "kind": KindResult, "name": name, "type": mime, "bytes": arr}, []any{buf})
 		})
+	case KindInflate:
+		blob, port := msg.Get("blob"), msg.Get("port")
+		if !present(blob) || !blob.InstanceOf(js.Global().Get("Blob")) || !present(port) || !port.InstanceOf(js.Global().Get("MessagePort")) {
+			postError(id, errors.New("inflate: want blob, a gzip Blob, and port, a MessagePort"))
+			return
+		}
+		run(id, func(ctx context.Context) {
+			n, sum, err := inflateToPort(ctx, blob, port)
+			if err != nil {
+				postError(id, err)
+				return
+			}
+			post(map[string]any{"v": ProtocolVersion, "id": id, "kind": KindResult, "bytes": float64(n), "sha256": sum}, nil)
+		})
 	case KindGunzip:
 		blob := msg.Get("blob")
 		how := stringField(msg, "how")
@@ -274,6 +300,7 @@ func start(id int, job func(context.Context, func(string, int, int)) (*analysis.
 		last = res
 		mu.Unlock()
 		postResult(id, res, false, truth, map[string]float64{})
+		res.PrepareRethreshold() // while the page draws
 	}()
 }
 

@@ -25,6 +25,10 @@ package main
 //	             nullCheck?: boolean (40 chance designs).
 //	             inflate?: "stream" | "wasm" (how a gzip run is inflated: the
 //	             browser's DecompressionStream, the default, or the Go decoder).
+//	             boldPort?: MessagePort (transferred): the decompressed run
+//	             arrives on it from a reader worker (inflate, below) instead
+//	             of being read from bold, which still names the file and is
+//	             read again for a series.
 //	             An absent or zero number means the documented default.
 //	demo         seed: number, and the settings of analyze except the files
 //	             and contrasts: the built-in synthetic scenario is generated
@@ -38,6 +42,13 @@ package main
 //	export       what: "map" (with index into the result's files),
 //	             "clusters", "summary", "report", "design" or "motion":
 //	             one file of the last result, encoded by the Go pipeline.
+//	inflate      blob: Blob (gzip), port: MessagePort (transferred): sent to a
+//	             second worker, the reader, for the parallel read of a run.
+//	             It slices the Blob, hashes it (SHA-256) and inflates it with
+//	             DecompressionStream, and posts on port the port messages
+//	             below; the page sends the other end of the channel to the
+//	             fit worker as analyze's boldPort. Reply: result with bytes
+//	             (compressed size) and sha256, or error.
 //	gunzip       blob: Blob, how: "stream" | "wasm": inflate a gzip Blob to
 //	             the end and report the time (a benchmark hook).
 //	group        maps: Blob[], mapNames: string[] (one 3D effect map per
@@ -50,6 +61,13 @@ package main
 //	             none, bonferroni, holm, fdr-bh, fdr-by, fwe-rft), perms,
 //	             seed, alpha, clusterP; shard, shards (K of N, 1-based:
 //	             only that slice of the relabellings; the reply is a shard).
+//	             Or rethreshold: true with correct, alpha, clusterP (absent:
+//	             those shown) and no files: infer the worker's last complete
+//	             group result again without new permutations; the reply is a
+//	             group result with partial: true (summary, thresholded maps,
+//	             hist, nullHist, nullCheck, timing: {rethreshold}), or an
+//	             error that ends "run the group analysis again" where the
+//	             recorded null cannot answer (cluster-perm at a new p).
 //	groupMerge   the fields of group (the maps are read again for the mean
 //	             background) and shards: Uint8Array[] (every shard's
 //	             bytes): the result one unsharded run gives.
@@ -95,12 +113,26 @@ package main
 //	             Float64Array, n, threshold: number | null, observed,
 //	             exceed}] (the permutation null of the maximum; absent under
 //	             parametric methods).
+//	             Group and shard results carry timing: stage start times,
+//	             ms, and the worker's Go memory, MB.
 //	nullCheck    (in every full result) {sentence, warning: string} or null:
 //	             the summary's null_check in words and, when its interval's
 //	             lower bound is above alpha, the warning ("" otherwise).
 //	error        message: string, one line, the text of the Go error.
 //
 // Typed arrays in a result are transferred, not copied.
+//
+// Port messages (reader worker <-> fit worker, on the MessagePort of
+// inflate and boldPort; plain objects without v, id or kind)
+//
+//	reader -> fit  chunk: Uint8Array (the next decompressed bytes, at most
+//	               1 MiB, its buffer transferred); end: true, bytes: number,
+//	               sha256: string (the compressed file's size and hash, after
+//	               the last chunk); or error: string (one line; the fit ends
+//	               with it).
+//	fit -> reader  credit: true (one chunk consumed: the reader keeps at most
+//	               8 chunks unanswered); close: true (the fit stopped reading,
+//	               for an error or a cancel: the reader's job ends).
 
 // ProtocolVersion is the v field of every message.
 const ProtocolVersion = 1
@@ -114,6 +146,7 @@ const (
 	KindSeries      = "series"
 	KindExport      = "export"
 	KindGunzip      = "gunzip"
+	KindInflate     = "inflate"
 	KindGroup       = "group"
 	KindGroupMerge  = "groupMerge"
 	KindReady       = "ready"
@@ -125,5 +158,12 @@ const (
 // chunkBytes is how much of a Blob one FileReaderSync call reads.
 const chunkBytes = 4 << 20
 
+// The pipe of the parallel read (port messages): decompressed bytes go in
+// chunks of pipeChunk bytes, at most pipeWindow of them unanswered.
+const (
+	pipeChunk  = 1 << 20
+	pipeWindow = 8
+)
+
 // requestKinds are the kinds a page may send, for the error on an unknown one.
-var requestKinds = []string{KindAnalyze, KindDemo, KindRethreshold, KindSeries, KindExport, KindGunzip, KindGroup, KindGroupMerge, KindCancel}
+var requestKinds = []string{KindAnalyze, KindDemo, KindRethreshold, KindSeries, KindExport, KindGunzip, KindInflate, KindGroup, KindGroupMerge, KindCancel}

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"runtime"
 	"slices"
 	"strings"
 
@@ -84,6 +85,7 @@ type FitResult struct {
 	resels       infer.Resels
 	fwhmVox      [3]float64
 	contrasts    []*contrastState
+	inGrid       []bool // scratch of fillClusters: the surviving voxels on the grid
 }
 
 // contrastState keeps what inference needs for one contrast.
@@ -91,10 +93,12 @@ type contrastState struct {
 	name, spec string
 	f          bool
 	df1, df2   float64
-	stat, z    []float64 // per in-mask voxel
-	logp       []float64 // ln upper-tail p per in-mask voxel
-	survive    []bool    // per in-mask voxel, under the current threshold
-	order      []int32   // voxels by ascending p, computed on first use
+	stat, z    []float64                  // per in-mask voxel
+	logp       []float64                  // ln upper-tail p per in-mask voxel
+	survive    []bool                     // per in-mask voxel, under the current threshold
+	order      []int32                    // voxels by ascending p, computed on first use
+	adjusted   map[infer.Method][]float64 // adjusted ln p per rank-based method, made on first use
+	statGrid   []float32                  // stat on the grid, for cluster tables; made on first use
 }
 
 func (o *FitOptions) defaults() {
@@ -196,6 +200,11 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 
 	// The run's header.
 	bh := newInputReader(in.Bold)
+	if runtime.GOMAXPROCS(0) > 1 {
+		// Hash the run beside its decompression rather than in its path.
+		bh.hashAsync()
+		defer bh.abort() // on an error path; after ref it does nothing
+	}
 	nr, err := nifti.NewReader(bh, opt.Limits)
 	if err != nil {
 		return nil, inputErr(in.Bold.Name, err)
@@ -305,15 +314,18 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 	// so decompression and accumulation overlap where there are two cores.
 	done := make(chan struct{})
 	defer close(done)
-	stream, free := readAhead(nr, bh, nvol, nvox, done)
+	stream, free := readAhead(nr, bh, nvol, done)
 	vol := first
+	cur := make([]float32, nvox) // volumes 2..n, decoded here from the reader's bytes
 	for t := 0; t < nvol; t++ {
 		if t > 0 {
 			next := <-stream
 			if next.err != nil {
 				return nil, inputErr(in.Bold.Name, next.err)
 			}
-			vol = next.vol
+			nr.DecodeVolume(cur, next.raw)
+			free <- next.raw // back to the reader for reuse
+			vol = cur
 		}
 		if rl != nil {
 			p, err := rl.Estimate(vol)
@@ -334,9 +346,6 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 		}
 		acc.AddVolume(v)
 		chance.AddVolume(v)
-		if t > 0 {
-			free <- vol // back to the reader for reuse
-		}
 		if t%8 == 0 || t == nvol-1 {
 			if err := ctx.Err(); err != nil {
 				return nil, err
@@ -348,7 +357,6 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 	if end := <-stream; end.err != nil {
 		return nil, inputErr(in.Bold.Name, end.err)
 	}
-	inputs = slices.Insert(inputs, 0, bh.ref("bold", in.Bold.Name))
 
 	// The fit.
 	opt.progress("fitting", 0, 1)
@@ -360,6 +368,13 @@ func Fit(ctx context.Context, in FitInputs, opt FitOptions) (*FitResult, error) 
 	if err != nil {
 		return nil, inputErr(in.Bold.Name, err)
 	}
+	// The run's size and SHA-256, asked for only now: where another worker
+	// hashes the file (the page's parallel read), it does so during the fit.
+	boldRef, err := bh.refErr("bold", in.Bold.Name)
+	if err != nil {
+		return nil, inputErr(in.Bold.Name, err)
+	}
+	inputs = slices.Insert(inputs, 0, boldRef)
 	opt.progress("fitting", 1, 1)
 
 	warnings = append(warnings, fit.Warnings...)
@@ -460,22 +475,25 @@ func volumeErr(err error, v, n int) error {
 	return err
 }
 
-// volMsg is one decoded volume, or the error that ended the stream. The
-// last message after the final volume has a nil vol and reports the end of
-// the stream (the gzip checksum).
+// volMsg is one volume's stored bytes, or the error that ended the stream.
+// The last message after the final volume has nil bytes and reports the end
+// of the stream (the gzip checksum).
 type volMsg struct {
-	vol []float32
+	raw []byte
 	err error
 }
 
-// readAhead decodes volumes 2..nvol into a small pool of buffers in its own
-// goroutine. The consumer returns each buffer on free when done with it.
-func readAhead(nr *nifti.Reader, bh *hashingReader, nvol, nvox int, done <-chan struct{}) (<-chan volMsg, chan<- []float32) {
+// readAhead reads the stored bytes of volumes 2..nvol into a small pool of
+// buffers in its own goroutine (decompression, and hashing the file); the
+// consumer decodes them (nifti.Reader.DecodeVolume) and returns each buffer
+// on free. On two or more cores the reading, which is the longer half, then
+// runs alone in its goroutine.
+func readAhead(nr *nifti.Reader, bh *hashingReader, nvol int, done <-chan struct{}) (<-chan volMsg, chan<- []byte) {
 	const pool = 3
 	out := make(chan volMsg, pool)
-	free := make(chan []float32, pool)
+	free := make(chan []byte, pool)
 	for range pool {
-		free <- make([]float32, nvox)
+		free <- make([]byte, nr.VolumeBytes())
 	}
 	send := func(m volMsg) bool {
 		select {
@@ -487,25 +505,25 @@ func readAhead(nr *nifti.Reader, bh *hashingReader, nvol, nvox int, done <-chan 
 	}
 	go func() {
 		for t := 1; t < nvol; t++ {
-			var buf []float32
+			var buf []byte
 			select {
 			case buf = <-free:
 			case <-done:
 				return
 			}
-			if err := nr.ReadVolume(buf); err != nil {
+			if err := nr.ReadVolumeRaw(buf); err != nil {
 				send(volMsg{err: volumeErr(err, t+1, nvol)})
 				return
 			}
-			if !send(volMsg{vol: buf}) {
+			if !send(volMsg{raw: buf}) {
 				return
 			}
 		}
 		// One more read verifies the end of the stream (the gzip checksum),
 		// then the rest of the file is hashed.
 		var err error
-		scratch := make([]float32, nvox)
-		if err = nr.ReadVolume(scratch); errors.Is(err, io.EOF) {
+		scratch := make([]byte, nr.VolumeBytes())
+		if err = nr.ReadVolumeRaw(scratch); errors.Is(err, io.EOF) {
 			err = bh.drain()
 		} else if err == nil {
 			err = fmt.Errorf("nifti: data beyond volume %d of %d", nvol, nvol)

@@ -444,3 +444,53 @@ func readTSV(t *testing.T, r io.Reader) [][]string {
 	}
 	return rows
 }
+
+// Re-thresholding is a function of the settings alone (identity): after the
+// page's preparation (PrepareRethreshold) and a round of re-thresholds
+// through every first-level method, which reuse the p order, the
+// statistic's grid and the scratch grid of surviving voxels, each method
+// gives the summary and thresholded map of a fresh fit made with it (the
+// command line's --correct).
+func TestRethresholdMatchesFreshFit(t *testing.T) {
+	files, _ := pageDemo(t)
+	fit := func(m infer.Method) *FitResult {
+		r, err := Fit(context.Background(), DemoInputs(files), FitOptions{Contrasts: []string{DemoContrast(1)}, Correct: m})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return r
+	}
+	page := fit(infer.MethodFWERFT)
+	page.PrepareRethreshold()
+	for _, m := range []infer.Method{infer.MethodNone, infer.MethodHolm, infer.MethodClusterRFT, infer.MethodBonferroni, infer.MethodFDRBY} {
+		if err := page.Rethreshold(m, DefaultAlpha, DefaultClusterP); err != nil {
+			t.Fatal(err)
+		}
+	}
+	for _, m := range []infer.Method{infer.MethodFDRBH, infer.MethodClusterRFT, infer.MethodFWERFT} {
+		if err := page.Rethreshold(m, DefaultAlpha, DefaultClusterP); err != nil {
+			t.Fatal(err)
+		}
+		fresh := fit(m)
+		var a, b bytes.Buffer
+		if err := page.WriteSummary(&a); err != nil {
+			t.Fatal(err)
+		}
+		if err := fresh.WriteSummary(&b); err != nil {
+			t.Fatal(err)
+		}
+		if a.String() != b.String() {
+			t.Errorf("%s: summary after re-thresholds differs from a fresh fit's", m)
+		}
+		if n := len(fresh.Summary.Contrasts[0].Clusters); n == 0 {
+			t.Errorf("%s: no cluster in the fresh fit; the demo's planted activation should survive", m)
+		}
+		pt, ft := page.MapOf(0, "thresholded").Data, fresh.MapOf(0, "thresholded").Data
+		for i := range ft {
+			if math.Float32bits(pt[i]) != math.Float32bits(ft[i]) {
+				t.Errorf("%s: thresholded map differs at voxel %d: %v, fresh %v", m, i, pt[i], ft[i])
+				break
+			}
+		}
+	}
+}

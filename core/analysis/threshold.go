@@ -3,6 +3,7 @@ package analysis
 import (
 	"fmt"
 	"math"
+	"slices"
 	"strings"
 
 	"winnow/core/cluster"
@@ -177,6 +178,19 @@ func (r *FitResult) Rethreshold(method infer.Method, alpha, clusterP float64) er
 	return nil
 }
 
+// PrepareRethreshold computes ahead what a re-threshold by a rank-based
+// method (holm, fdr-bh, fdr-by) would compute on first use: each contrast's
+// order of p-values. The results of every later re-threshold are unchanged;
+// the page's worker calls it while idle after a fit, so that the first such
+// re-threshold is as fast as the next ones.
+func (r *FitResult) PrepareRethreshold() {
+	for _, cs := range r.contrasts {
+		if cs.order == nil && cs.logp != nil {
+			cs.order = infer.Order(cs.logp)
+		}
+	}
+}
+
 // field is the random field the contrast's statistic forms.
 func (cs *contrastState) field() infer.Field {
 	if cs.f {
@@ -234,29 +248,40 @@ func (r *FitResult) threshold(cs *contrastState, out *report.Contrast, method in
 		out.ThresholdSource = "uncorrected"
 		peakP = func(int) *float64 { return nil }
 	case infer.MethodBonferroni, infer.MethodHolm, infer.MethodFDRBH, infer.MethodFDRBY:
-		var adj infer.Adjusted
-		if method != infer.MethodBonferroni && cs.order == nil {
-			cs.order = infer.Order(cs.logp) // fixed per contrast: kept for re-thresholding
+		// The adjusted ln p-values do not depend on alpha: made once per contrast and
+		// method, then each level is a comparison (infer.Reject).
+		adjLogP := cs.adjusted[method]
+		if adjLogP == nil {
+			if method != infer.MethodBonferroni && cs.order == nil {
+				cs.order = infer.Order(cs.logp) // fixed per contrast: kept for re-thresholding
+			}
+			var adj infer.Adjusted
+			switch method {
+			case infer.MethodBonferroni:
+				adj = infer.Bonferroni(cs.logp, alpha)
+			case infer.MethodHolm:
+				adj = infer.HolmOrdered(cs.logp, cs.order, alpha)
+			case infer.MethodFDRBH:
+				adj = infer.BHOrdered(cs.logp, cs.order, alpha)
+			default:
+				adj = infer.BYOrdered(cs.logp, cs.order, alpha)
+			}
+			adjLogP = adj.LogP
+			if cs.adjusted == nil {
+				cs.adjusted = map[infer.Method][]float64{}
+			}
+			cs.adjusted[method] = adjLogP
 		}
-		switch method {
-		case infer.MethodBonferroni:
-			adj = infer.Bonferroni(cs.logp, alpha)
-		case infer.MethodHolm:
-			adj = infer.HolmOrdered(cs.logp, cs.order, alpha)
-		case infer.MethodFDRBH:
-			adj = infer.BHOrdered(cs.logp, cs.order, alpha)
-		default:
-			adj = infer.BYOrdered(cs.logp, cs.order, alpha)
-		}
+		rejected, lt := infer.Reject(cs.logp, adjLogP, alpha)
 		for k, lp := range cs.logp {
-			cs.survive[k] = lp <= adj.LogPThreshold
+			cs.survive[k] = lp <= lt
 		}
 		if method == infer.MethodBonferroni {
 			setThr(infer.BonferroniThreshold(cs.field(), m, alpha))
-		} else if adj.Rejected > 0 {
-			setThr(cs.statFromLogP(adj.LogPThreshold))
+		} else if rejected > 0 {
+			setThr(cs.statFromLogP(lt))
 		}
-		peakP = func(k int) *float64 { return ptr(adj.P[k]) }
+		peakP = func(k int) *float64 { return ptr(math.Exp(adjLogP[k])) }
 	case infer.MethodFWERFT:
 		f := cs.field()
 		uB := infer.BonferroniThreshold(f, m, alpha)
@@ -312,17 +337,28 @@ func (r *FitResult) threshold(cs *contrastState, out *report.Contrast, method in
 
 // fillClusters labels the surviving voxels and writes the cluster table.
 // p gives a cluster's corrected p from its size and its peak's voxel number.
+//
+// The statistic's grid is kept with the contrast and the grid of surviving
+// voxels is reused, so a re-threshold allocates no grid-sized array.
 func (r *FitResult) fillClusters(cs *contrastState, out *report.Contrast, p func(size, peak int) *float64) {
-	in := make([]bool, r.Grid.Voxels())
-	statGrid := make([]float32, r.Grid.Voxels())
+	nv := r.Grid.Voxels()
+	if len(cs.statGrid) != nv {
+		cs.statGrid = make([]float32, nv)
+		for k, v := range r.voxels {
+			cs.statGrid[v] = float32(cs.stat[k])
+		}
+	}
+	if len(r.inGrid) != nv {
+		r.inGrid = make([]bool, nv)
+	} else {
+		clear(r.inGrid)
+	}
+	in := r.inGrid
 	n := 0
-	pos := make(map[int32]int, 0)
 	for k, v := range r.voxels {
-		statGrid[v] = float32(cs.stat[k])
 		if cs.survive[k] {
 			in[v] = true
 			n++
-			pos[v] = k
 		}
 	}
 	out.SurvivingVoxels = n
@@ -330,9 +366,17 @@ func (r *FitResult) fillClusters(cs *contrastState, out *report.Contrast, p func
 	if n == 0 {
 		return
 	}
+	// pos is the in-mask number of a surviving voxel (r.voxels ascends).
+	pos := func(v int) int {
+		k, ok := slices.BinarySearch(r.voxels, int32(v))
+		if !ok {
+			panic(fmt.Sprintf("analysis: cluster voxel %d is not in the mask", v))
+		}
+		return k
+	}
 	vol := r.voxelVolume()
-	for _, c := range cluster.Clusters(statGrid, in, r.Grid.Dims, cluster.Corners, r.Grid.Affine, cluster.TableOptions{}) {
-		k := pos[int32(c.Peak)]
+	for _, c := range cluster.Clusters(cs.statGrid, in, r.Grid.Dims, cluster.Corners, r.Grid.Affine, cluster.TableOptions{}) {
+		k := pos(c.Peak)
 		rc := report.Cluster{
 			Voxels:     c.Voxels,
 			VolumeMM3:  float64(c.Voxels) * vol,
@@ -343,7 +387,7 @@ func (r *FitResult) fillClusters(cs *contrastState, out *report.Contrast, p func
 			PCorrected: p(c.Voxels, k),
 		}
 		for _, mx := range c.Maxima {
-			mk := pos[int32(mx.Index)]
+			mk := pos(mx.Index)
 			rc.LocalMaxima = append(rc.LocalMaxima, report.Maximum{IJK: mx.IJK, MM: mx.MM, Stat: cs.stat[mk], Z: cs.z[mk]})
 		}
 		out.Clusters = append(out.Clusters, rc)

@@ -36,9 +36,7 @@ func cleanLogP(lp float64) float64 {
 
 // finish fills P from LogP (NaN inputs stay NaN), counts rejections and the threshold.
 func finish(logp []float64, a *Adjusted, alpha float64) {
-	la := math.Log(alpha) + rejectSlack
 	a.P = make([]float64, len(logp))
-	a.LogPThreshold = math.Inf(-1)
 	for i, lp := range logp {
 		if math.IsNaN(lp) {
 			a.LogP[i] = math.NaN()
@@ -46,23 +44,41 @@ func finish(logp []float64, a *Adjusted, alpha float64) {
 			continue
 		}
 		a.P[i] = math.Exp(a.LogP[i])
-		if a.LogP[i] <= la {
-			a.Rejected++
-			if c := cleanLogP(lp); c > a.LogPThreshold {
-				a.LogPThreshold = c
+	}
+	a.Rejected, a.LogPThreshold = Reject(logp, a.LogP, alpha)
+}
+
+// Reject applies level alpha to adjusted ln p-values adj (the LogP of an adjustment of
+// logp) and returns what the adjustment reports at that level: the number of rejected
+// tests and ln of the largest rejected raw p (-Inf when none), ties at it included. It
+// forms no linear p-values. Adjusted ln p-values do not depend on alpha, so a caller that
+// tests the same p-values at several levels keeps them and calls Reject for each.
+func Reject(logp, adj []float64, alpha float64) (rejected int, logPThreshold float64) {
+	la := math.Log(alpha) + rejectSlack
+	logPThreshold = math.Inf(-1)
+	adj = adj[:len(logp)]
+	for i, lp := range logp {
+		if math.IsNaN(lp) {
+			continue
+		}
+		if adj[i] <= la {
+			rejected++
+			if c := cleanLogP(lp); c > logPThreshold {
+				logPThreshold = c
 			}
 		}
 	}
 	// Every test at or below the threshold is rejected (ties at the largest rejected p).
-	if a.Rejected > 0 {
+	if rejected > 0 {
 		n := 0
 		for _, lp := range logp {
-			if !math.IsNaN(lp) && cleanLogP(lp) <= a.LogPThreshold {
+			if !math.IsNaN(lp) && cleanLogP(lp) <= logPThreshold {
 				n++
 			}
 		}
-		a.Rejected = n
+		rejected = n
 	}
+	return rejected, logPThreshold
 }
 
 // order returns the indices of logp sorted by ascending (cleaned) ln p; ties keep input order.

@@ -113,6 +113,21 @@ export function pick(geom, x, y, cursor) {
   return null;
 }
 
+// scratch returns an off-screen canvas of w x h pixels for one panel, kept
+// between renders: making a canvas each time costs more than drawing it.
+// Its pixels are always replaced whole before use.
+const scratchCanvases = new Map();
+function scratch(key, w, h) {
+  let c = scratchCanvases.get(key);
+  if (!c) {
+    c = document.createElement("canvas");
+    scratchCanvases.set(key, c);
+  }
+  if (c.width !== w) c.width = w;
+  if (c.height !== h) c.height = h;
+  return c;
+}
+
 export function render(canvas, data, opts = {}) {
   const dpr = opts.dpr || 1;
   const ctx = canvas.getContext("2d");
@@ -158,9 +173,7 @@ export function render(canvas, data, opts = {}) {
         if (inside && data.outline[idx] > 0) inside[p + pn.nh * q] = 1;
       }
     }
-    const off = document.createElement("canvas");
-    off.width = pn.nh;
-    off.height = pn.nv;
+    const off = scratch(pn.name, pn.nh, pn.nv);
     off.getContext("2d").putImageData(img, 0, 0);
     ctx.imageSmoothingEnabled = false;
     ctx.drawImage(off, pn.x0, pn.y0, pn.w, pn.h);
