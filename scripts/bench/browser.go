@@ -77,34 +77,12 @@ func (s *session) page(ctx context.Context) error {
 	}
 
 	// Serve the build on loopback with the page's isolation headers.
-	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	url, stop, err := serveSite(site)
 	if err != nil {
 		return err
 	}
-	fsrv := http.FileServer(http.Dir(site))
-	srv := &http.Server{ReadHeaderTimeout: 10 * time.Second, Handler: http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
-		w.Header().Set("Cross-Origin-Opener-Policy", "same-origin")
-		w.Header().Set("Cross-Origin-Embedder-Policy", "require-corp")
-		w.Header().Set("Cache-Control", "no-store")
-		fsrv.ServeHTTP(w, r)
-	})}
-	go srv.Serve(ln)
-	defer srv.Close()
-	url := "http://" + ln.Addr().String() + "/"
-
-	opts := []chromedp.ExecAllocatorOption{
-		chromedp.ExecPath(chromiumPath),
-		chromedp.Headless,
-		chromedp.NoSandbox,
-		chromedp.DisableGPU,
-		chromedp.NoFirstRun,
-		chromedp.NoDefaultBrowserCheck,
-		chromedp.Flag("disable-background-networking", true),
-		chromedp.Flag("disable-component-update", true),
-		chromedp.Flag("disable-sync", true),
-		chromedp.UserDataDir(filepath.Join(s.cfg.Dir, "chromium-profile")),
-		chromedp.WindowSize(1440, 1000),
-	}
+	defer stop()
+	opts := chromiumOptions(filepath.Join(s.cfg.Dir, "chromium-profile"))
 	actx, cancelAlloc := chromedp.NewExecAllocator(ctx, opts...)
 	defer cancelAlloc()
 	bctx2, cancelTab := chromedp.NewContext(actx)
@@ -347,6 +325,43 @@ func (s *session) pageLargeRun(ctx context.Context, site string, pageCPU func() 
 		"speed ratio: fit_numpy.py ÷ window.winnow.analyze on the large synthetic run in headless Chromium (the .nii.gz chosen as a File, the browser's gunzip, the WebAssembly fit in the page's workers; until the views show the result), paired with numpy runs 1..%d; medians %.2f s (numpy) vs %.2f s (page), wall clock; %s; %s (%d voxels).%s",
 		runs, nm, pm, cpuNote, agree, vox, node))
 	return vox, true
+}
+
+// serveSite serves the page build in dir on loopback with the page's
+// isolation headers; it returns the page's URL and a function that stops
+// the server.
+func serveSite(dir string) (string, func(), error) {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		return "", nil, err
+	}
+	fsrv := http.FileServer(http.Dir(dir))
+	srv := &http.Server{ReadHeaderTimeout: 10 * time.Second, Handler: http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		w.Header().Set("Cross-Origin-Opener-Policy", "same-origin")
+		w.Header().Set("Cross-Origin-Embedder-Policy", "require-corp")
+		w.Header().Set("Cache-Control", "no-store")
+		fsrv.ServeHTTP(w, r)
+	})}
+	go srv.Serve(ln)
+	return "http://" + ln.Addr().String() + "/", func() { srv.Close() }, nil
+}
+
+// chromiumOptions are the settings of the headless Chromium the page
+// figures drive, with its profile in the folder profile.
+func chromiumOptions(profile string) []chromedp.ExecAllocatorOption {
+	return []chromedp.ExecAllocatorOption{
+		chromedp.ExecPath(chromiumPath),
+		chromedp.Headless,
+		chromedp.NoSandbox,
+		chromedp.DisableGPU,
+		chromedp.NoFirstRun,
+		chromedp.NoDefaultBrowserCheck,
+		chromedp.Flag("disable-background-networking", true),
+		chromedp.Flag("disable-component-update", true),
+		chromedp.Flag("disable-sync", true),
+		chromedp.UserDataDir(profile),
+		chromedp.WindowSize(1440, 1000),
+	}
 }
 
 // evalJS evaluates a script in the page, awaiting a promise it returns.

@@ -46,6 +46,9 @@ var figureSpecs = []figureSpec{
 	{"group_perm_seconds", "s", "<= 30"},
 	{"page_fit_vs_native", "x", "<= 2"},
 	{"page_rethreshold_ms", "ms", "<= 50"},
+	{pageGroupName, "x", "<= 3"},
+	{pageGroupMemory, "x", "<= 4"},
+	{nullCheckName, "x", "<= 1"},
 }
 
 func figureNames() []string {
@@ -106,7 +109,7 @@ func measureAll(ctx context.Context, cfg config) (*Report, error) {
 	// The synthetic run feeds the ingest and fit figures; skip making it
 	// when none of them is wanted.
 	needRun := false
-	for _, n := range []string{"ingest_vs_gunzip", "fit_end_to_end_vs_gunzip", "fit_rss_vs_data", "fit_native_vs_numpy", "fit_wasm_vs_numpy"} {
+	for _, n := range []string{"ingest_vs_gunzip", "fit_end_to_end_vs_gunzip", "fit_rss_vs_data", "fit_native_vs_numpy", "fit_wasm_vs_numpy", nullCheckName} {
 		if _, skip := cfg.Skip[n]; !skip {
 			needRun = true
 		}
@@ -139,8 +142,10 @@ func measureAll(ctx context.Context, cfg config) (*Report, error) {
 		{[]string{"fit_wasm_vs_native"}, s.kernelWasm},
 		{[]string{"fit_end_to_end_vs_gunzip", "fit_rss_vs_data", "fit_native_vs_numpy"}, s.fitNative},
 		{[]string{"fit_wasm_vs_numpy"}, s.fitWasm},
+		{[]string{nullCheckName}, s.nullCheck},
 		{[]string{"group_perm_seconds"}, s.group},
 		{[]string{"page_fit_vs_native", "page_rethreshold_ms"}, s.page},
+		{[]string{pageGroupName, pageGroupMemory}, s.pageGroup},
 	}
 	for _, st := range steps {
 		all := true
@@ -613,10 +618,14 @@ func (s *session) fitNative(ctx context.Context) error {
 	}
 	last := s.fits[len(s.fits)-1]
 	lg := s.gunzip[len(s.gunzip)-1]
-	wm, _, _, _ := stats(e2eWall)
-	s.setFigure("fit_end_to_end_vs_gunzip", e2e, s.cfg.Clock, fmt.Sprintf(
-		"`winnow fit` (native CLI subprocess: read, automatic mask, AR(1) GLS, one t contrast, fwe-rft, maps and summary written; %d mask voxels) ÷ klauspost gzip of the same file in this process; last run %.2f s vs %.2f s (%s), wall %.2f s vs %.2f s; wall-clock ratio %.2f",
-		s.fitSummaryVoxels, last.secs(s.cfg.Clock), lg.secs(s.cfg.Clock), s.cfg.Clock, last.Wall.Seconds(), lg.Wall.Seconds(), wm))
+	// Wall clock: the fit decodes in one goroutine while another accumulates
+	// and solves on the other cores, so what a user waits for is the wall
+	// time; the single-threaded gunzip's wall and CPU times agree. The CPU
+	// ratio (all the fit's threads) stays in the note.
+	cm, _, _, _ := stats(e2e)
+	s.setFigure("fit_end_to_end_vs_gunzip", e2eWall, "wall", fmt.Sprintf(
+		"`winnow fit` (native CLI subprocess: read, automatic mask, AR(1) GLS, one t contrast, fwe-rft, maps and summary written; %d mask voxels) ÷ klauspost gzip of the same file in this process, wall clock (the fit overlaps decoding and accumulation on %d cores); last run wall %.2f s vs %.2f s; CPU %.2f s vs %.2f s (%s), CPU ratio %.2f",
+		s.fitSummaryVoxels, runtime.NumCPU(), last.Wall.Seconds(), lg.Wall.Seconds(), last.secs(s.cfg.Clock), lg.secs(s.cfg.Clock), s.cfg.Clock, cm))
 	if len(rss) > 0 {
 		s.setFigure("fit_rss_vs_data", rss, "", fmt.Sprintf(
 			"peak RSS of the fit subprocess (getrusage ru_maxrss) ÷ %d bytes of decompressed image data; last run %.0f MB",
