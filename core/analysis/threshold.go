@@ -179,16 +179,48 @@ func (r *FitResult) Rethreshold(method infer.Method, alpha, clusterP float64) er
 }
 
 // PrepareRethreshold computes ahead what a re-threshold by a rank-based
-// method (holm, fdr-bh, fdr-by) would compute on first use: each contrast's
-// order of p-values. The results of every later re-threshold are unchanged;
+// method (bonferroni, holm, fdr-bh, fdr-by) would compute on first use: each
+// contrast's order of p-values and adjusted ln p-values. The results of every later re-threshold are unchanged;
 // the page's worker calls it while idle after a fit, so that the first such
 // re-threshold is as fast as the next ones.
 func (r *FitResult) PrepareRethreshold() {
 	for _, cs := range r.contrasts {
-		if cs.order == nil && cs.logp != nil {
-			cs.order = infer.Order(cs.logp)
+		if cs.logp == nil {
+			continue
+		}
+		for _, m := range []infer.Method{infer.MethodBonferroni, infer.MethodHolm, infer.MethodFDRBH, infer.MethodFDRBY} {
+			cs.adjustedLogP(m)
 		}
 	}
+}
+
+// adjustedLogP returns the contrast's adjusted ln p-values under a rank-based
+// method (bonferroni, holm, fdr-bh, fdr-by). They do not depend on alpha, so
+// they are made once per contrast and method and kept for re-thresholding.
+func (cs *contrastState) adjustedLogP(method infer.Method) []float64 {
+	if a := cs.adjusted[method]; a != nil {
+		return a
+	}
+	if method != infer.MethodBonferroni && cs.order == nil {
+		cs.order = infer.Order(cs.logp) // fixed per contrast: kept for re-thresholding
+	}
+	const level = 0.05 // any level: only the adjusted ln p are kept
+	var adj infer.Adjusted
+	switch method {
+	case infer.MethodBonferroni:
+		adj = infer.Bonferroni(cs.logp, level)
+	case infer.MethodHolm:
+		adj = infer.HolmOrdered(cs.logp, cs.order, level)
+	case infer.MethodFDRBH:
+		adj = infer.BHOrdered(cs.logp, cs.order, level)
+	default:
+		adj = infer.BYOrdered(cs.logp, cs.order, level)
+	}
+	if cs.adjusted == nil {
+		cs.adjusted = map[infer.Method][]float64{}
+	}
+	cs.adjusted[method] = adj.LogP
+	return adj.LogP
 }
 
 // field is the random field the contrast's statistic forms.
@@ -250,28 +282,7 @@ func (r *FitResult) threshold(cs *contrastState, out *report.Contrast, method in
 	case infer.MethodBonferroni, infer.MethodHolm, infer.MethodFDRBH, infer.MethodFDRBY:
 		// The adjusted ln p-values do not depend on alpha: made once per contrast and
 		// method, then each level is a comparison (infer.Reject).
-		adjLogP := cs.adjusted[method]
-		if adjLogP == nil {
-			if method != infer.MethodBonferroni && cs.order == nil {
-				cs.order = infer.Order(cs.logp) // fixed per contrast: kept for re-thresholding
-			}
-			var adj infer.Adjusted
-			switch method {
-			case infer.MethodBonferroni:
-				adj = infer.Bonferroni(cs.logp, alpha)
-			case infer.MethodHolm:
-				adj = infer.HolmOrdered(cs.logp, cs.order, alpha)
-			case infer.MethodFDRBH:
-				adj = infer.BHOrdered(cs.logp, cs.order, alpha)
-			default:
-				adj = infer.BYOrdered(cs.logp, cs.order, alpha)
-			}
-			adjLogP = adj.LogP
-			if cs.adjusted == nil {
-				cs.adjusted = map[infer.Method][]float64{}
-			}
-			cs.adjusted[method] = adjLogP
-		}
+		adjLogP := cs.adjustedLogP(method)
 		rejected, lt := infer.Reject(cs.logp, adjLogP, alpha)
 		for k, lp := range cs.logp {
 			cs.survive[k] = lp <= lt
