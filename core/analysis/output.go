@@ -24,13 +24,15 @@ func (r *FitResult) WriteDir(dir string) error {
 	if err := os.Remove(filepath.Join(dir, "summary.json")); err != nil && !os.IsNotExist(err) {
 		return err
 	}
-	for _, m := range r.Maps {
-		err := writeAtomic(filepath.Join(dir, m.File), func(w io.Writer) error {
+	// The maps are compressed on every core; each file's bytes do not depend on it.
+	err := parallelEach(len(r.Maps), func(i int) error {
+		m := r.Maps[i]
+		return writeAtomic(filepath.Join(dir, m.File), func(w io.Writer) error {
 			return nifti.WriteMap(w, r.Grid, m.Data, m.Write)
 		})
-		if err != nil {
-			return err
-		}
+	})
+	if err != nil {
+		return err
 	}
 	if err := writeAtomic(filepath.Join(dir, "design.tsv"), r.Design.WriteTSV); err != nil {
 		return err

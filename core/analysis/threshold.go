@@ -67,15 +67,18 @@ func (r *FitResult) addContrast(c *contrast.Contrast, spec string, st *glm.Stat,
 	cs.stat = r.pick(st.Stat)
 	cs.logp = make([]float64, len(cs.stat))
 	cs.z = make([]float64, len(cs.stat))
-	for i, s := range cs.stat {
-		if cs.f {
-			cs.logp[i] = dist.FLogSF(s, cs.df1, cs.df2)
-			cs.z[i] = dist.FToZ(s, cs.df1, cs.df2)
-		} else {
-			cs.logp[i] = dist.TLogSF(s, cs.df1)
-			cs.z[i] = dist.TToZ(s, cs.df1)
+	parallelRange(len(cs.stat), func(lo, hi int) {
+		for i := lo; i < hi; i++ {
+			s := cs.stat[i]
+			if cs.f {
+				cs.logp[i] = dist.FLogSF(s, cs.df1, cs.df2)
+				cs.z[i] = dist.FToZ(s, cs.df1, cs.df2)
+			} else {
+				cs.logp[i] = dist.TLogSF(s, cs.df1)
+				cs.z[i] = dist.TToZ(s, cs.df1)
+			}
 		}
-	}
+	})
 	idx := len(r.contrasts)
 	r.contrasts = append(r.contrasts, cs)
 	kind, statKind, intent := "t", "t", 3
