@@ -957,14 +957,11 @@ func parametricP(r *FitResult, cs *contrastState, method infer.Method, alpha, cl
 		for k, lp := range cs.logp {
 			p[k] = math.Exp(lp)
 		}
-	case infer.MethodBonferroni:
-		copy(p, infer.Bonferroni(cs.logp, alpha).P)
-	case infer.MethodHolm:
-		copy(p, infer.Holm(cs.logp, alpha).P)
-	case infer.MethodFDRBH:
-		copy(p, infer.BH(cs.logp, alpha).P)
-	case infer.MethodFDRBY:
-		copy(p, infer.BY(cs.logp, alpha).P)
+	case infer.MethodBonferroni, infer.MethodHolm, infer.MethodFDRBH, infer.MethodFDRBY:
+		// Adjusted p do not depend on alpha: kept with the contrast for re-thresholds.
+		for k, a := range cs.adjustedLogP(method) {
+			p[k] = math.Exp(a)
+		}
 	case infer.MethodFWERFT:
 		f := cs.field()
 		rft := infer.PeakPs(r.resels, f, cs.stat)
