@@ -101,6 +101,10 @@ type GroupResult struct {
 type statTails struct {
 	logp, z []float64
 	perm    *permPs
+	// The p order and the adjusted ln p of rank-based methods (alpha-free, made on first
+	// use), kept across re-thresholds like logp and z.
+	order    *[]int32
+	adjusted map[infer.Method][]float64
 }
 
 type permPs struct {
@@ -672,6 +676,13 @@ func finishGroupWith(st *groupState, nulls []groupNull, tails []statTails) (*Gro
 			}
 		}
 		tl.logp, tl.z = cs.logp, cs.z
+		if tl.order == nil {
+			tl.order = new([]int32)
+		}
+		if tl.adjusted == nil {
+			tl.adjusted = map[infer.Method][]float64{}
+		}
+		cs.order, cs.adjusted = *tl.order, tl.adjusted
 		res.tails = append(res.tails, tl)
 		fr.contrasts = append(fr.contrasts, cs)
 		kind, statKind, intent := "t", "t", 3
@@ -763,6 +774,9 @@ func finishGroupWith(st *groupState, nulls []groupNull, tails []statTails) (*Gro
 		sum.NullCheck = nullCheck(st, nulls)
 	}
 	sum.Warnings = append(sum.Warnings, warn...)
+	for ci, cs := range fr.contrasts {
+		*res.tails[ci].order = cs.order // made on first use: kept for the next re-threshold
+	}
 	return res, nil
 }
 
