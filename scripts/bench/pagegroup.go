@@ -6,7 +6,6 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"os"
 	"os/exec"
@@ -489,105 +488,4 @@ func processKind(pid int64) string {
 		kind += " (" + sub + ")"
 	}
 	return kind
-}
-
-// treeMem is the sum of VmRSS and of VmHWM (proc(5), /proc/PID/status, kB)
-// over process root and its live descendants; ok is false where /proc is
-// not readable.
-func treeMem(root int) (rss, hwm int64, ok bool) {
-	return treeMemOf(root, nil)
-}
-
-// treeMemOf is treeMem that also records each process's VmRSS in per (when
-// not nil), by pid.
-func treeMemOf(root int, per map[int64]int64) (rss, hwm int64, ok bool) {
-	if root < 0 {
-		return 0, 0, false
-	}
-	ents, err := os.ReadDir("/proc")
-	if err != nil {
-		return 0, 0, false
-	}
-	parent := map[int64]int64{}
-	for _, e := range ents {
-		pid, err := strconv.ParseInt(e.Name(), 10, 64)
-		if err != nil {
-			continue
-		}
-		b, err := os.ReadFile("/proc/" + e.Name() + "/stat")
-		if err != nil {
-			continue
-		}
-		st := string(b)
-		i := strings.LastIndexByte(st, ')')
-		if i < 0 {
-			continue
-		}
-		f := strings.Fields(st[i+1:])
-		if len(f) < 2 {
-			continue
-		}
-		parent[pid], _ = strconv.ParseInt(f[1], 10, 64)
-	}
-	if _, ok := parent[int64(root)]; !ok {
-		return 0, 0, false
-	}
-	for pid := range parent {
-		in := false
-		for q, hops := pid, 0; hops < 64; hops++ {
-			if q == int64(root) {
-				in = true
-				break
-			}
-			pp, ok := parent[q]
-			if !ok || pp == q || pp == 0 {
-				break
-			}
-			q = pp
-		}
-		if !in {
-			continue
-		}
-		r, h, err := statusMem(pid)
-		if err != nil {
-			continue
-		}
-		if per != nil {
-			per[pid] = r
-		}
-		rss += r
-		hwm += h
-	}
-	return rss, hwm, true
-}
-
-// statusMem reads VmRSS and VmHWM of one process, in bytes.
-func statusMem(pid int64) (rss, hwm int64, err error) {
-	b, err := os.ReadFile("/proc/" + strconv.FormatInt(pid, 10) + "/status")
-	if err != nil {
-		return 0, 0, err
-	}
-	for _, line := range strings.Split(string(b), "\n") {
-		k, v, ok := strings.Cut(line, ":")
-		if !ok || (k != "VmRSS" && k != "VmHWM") {
-			continue
-		}
-		f := strings.Fields(v)
-		if len(f) < 1 {
-			continue
-		}
-		x, err := strconv.ParseInt(f[0], 10, 64)
-		if err != nil {
-			continue
-		}
-		if k == "VmRSS" {
-			rss = x << 10
-		} else {
-			hwm = x << 10
-		}
-	}
-	if rss == 0 && hwm == 0 {
-		return 0, 0, errors.New("no VmRSS")
-	}
-	return rss, hwm, nil
 }

@@ -3,6 +3,7 @@
 package main
 
 import (
+	"errors"
 	"os"
 	"strconv"
 	"strings"
@@ -13,17 +14,20 @@ import (
 // (proc(5)); 100 on Linux for every common architecture.
 const clockTicks = 100
 
-// treeCPU is the user plus system CPU time of process root and all its
-// live descendants, from /proc (proc(5): fields 14 utime and 15 stime of
-// /proc/PID/stat, and 16, 17 for waited-for children). ok is false where
-// /proc is not readable.
-func treeCPU(root int) (time.Duration, bool) {
+// procTree returns process root and its live descendants, each with the
+// fields of its /proc/PID/stat after the command name (f[0] is field 3,
+// state: field n is f[n-3]). ok is false where /proc is not readable or
+// root is not running.
+func procTree(root int) (map[int64][]string, bool) {
+	if root < 0 {
+		return nil, false
+	}
 	ents, err := os.ReadDir("/proc")
 	if err != nil {
-		return 0, false
+		return nil, false
 	}
-	type proc struct{ ppid, ticks int64 }
-	procs := map[int64]proc{}
+	stat := map[int64][]string{}
+	parent := map[int64]int64{}
 	for _, e := range ents {
 		pid, err := strconv.ParseInt(e.Name(), 10, 64)
 		if err != nil {
@@ -40,34 +44,109 @@ func treeCPU(root int) (time.Duration, bool) {
 			continue
 		}
 		f := strings.Fields(s[i+1:])
-		// f[0] is field 3 (state): field n is f[n-3].
-		if len(f) < 15 {
+		if len(f) < 2 {
 			continue
 		}
-		ppid, _ := strconv.ParseInt(f[1], 10, 64)
-		var ticks int64
-		for _, k := range []int{14, 15, 16, 17} {
-			v, _ := strconv.ParseInt(f[k-3], 10, 64)
-			ticks += v
-		}
-		procs[pid] = proc{ppid, ticks}
+		stat[pid] = f
+		parent[pid], _ = strconv.ParseInt(f[1], 10, 64)
 	}
-	if _, ok := procs[int64(root)]; !ok {
+	if _, ok := parent[int64(root)]; !ok {
+		return nil, false
+	}
+	tree := map[int64][]string{}
+	for pid, f := range stat {
+		for q, hops := pid, 0; hops < 64; hops++ {
+			if q == int64(root) {
+				tree[pid] = f
+				break
+			}
+			pp, ok := parent[q]
+			if !ok || pp == q || pp == 0 {
+				break
+			}
+			q = pp
+		}
+	}
+	return tree, true
+}
+
+// treeCPU is the user plus system CPU time of process root and all its
+// live descendants, from /proc (proc(5): fields 14 utime and 15 stime of
+// /proc/PID/stat, and 16, 17 for waited-for children). ok is false where
+// /proc is not readable.
+func treeCPU(root int) (time.Duration, bool) {
+	tree, ok := procTree(root)
+	if !ok {
 		return 0, false
 	}
 	var total int64
-	for pid, p := range procs {
-		for q := pid; ; {
-			if q == int64(root) {
-				total += p.ticks
-				break
-			}
-			pp, ok := procs[q]
-			if !ok || pp.ppid == q || pp.ppid == 0 {
-				break
-			}
-			q = pp.ppid
+	for _, f := range tree {
+		if len(f) < 15 {
+			continue
+		}
+		for _, k := range []int{14, 15, 16, 17} {
+			v, _ := strconv.ParseInt(f[k-3], 10, 64)
+			total += v
 		}
 	}
 	return time.Duration(total) * time.Second / clockTicks, true
+}
+
+// treeMem is the sum of VmRSS and of VmHWM (proc(5), /proc/PID/status, kB)
+// over process root and its live descendants; ok is false where /proc is
+// not readable.
+func treeMem(root int) (rss, hwm int64, ok bool) {
+	return treeMemOf(root, nil)
+}
+
+// treeMemOf is treeMem that also records each process's VmRSS in per (when
+// not nil), by pid.
+func treeMemOf(root int, per map[int64]int64) (rss, hwm int64, ok bool) {
+	tree, ok := procTree(root)
+	if !ok {
+		return 0, 0, false
+	}
+	for pid := range tree {
+		r, h, err := statusMem(pid)
+		if err != nil {
+			continue
+		}
+		if per != nil {
+			per[pid] = r
+		}
+		rss += r
+		hwm += h
+	}
+	return rss, hwm, true
+}
+
+// statusMem reads VmRSS and VmHWM of one process, in bytes.
+func statusMem(pid int64) (rss, hwm int64, err error) {
+	b, err := os.ReadFile("/proc/" + strconv.FormatInt(pid, 10) + "/status")
+	if err != nil {
+		return 0, 0, err
+	}
+	for _, line := range strings.Split(string(b), "\n") {
+		k, v, ok := strings.Cut(line, ":")
+		if !ok || (k != "VmRSS" && k != "VmHWM") {
+			continue
+		}
+		f := strings.Fields(v)
+		if len(f) < 1 {
+			continue
+		}
+		x, err := strconv.ParseInt(f[0], 10, 64)
+		if err != nil {
+			continue
+		}
+		if k == "VmRSS" {
+			rss = x << 10
+		} else {
+			hwm = x << 10
+		}
+	}
+	if rss == 0 && hwm == 0 {
+		return 0, 0, errors.New("no VmRSS")
+	}
+	return rss, hwm, nil
 }
