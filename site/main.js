@@ -41,18 +41,23 @@ async function inflateWasm() {
   return new Response(stream).arrayBuffer();
 }
 
-function startWorker() {
+// newBootedWorker starts a worker and sends it the WebAssembly program: the
+// embedded copy in the offline file, else winnow.wasm next to the page.
+// onFail gets an Error when the embedded copy cannot be inflated.
+function newBootedWorker(onFail) {
+  let w;
   if (workerSrc) {
-    const url = URL.createObjectURL(new Blob([workerSrc.textContent], { type: "text/javascript" }));
-    worker = new Worker(url);
-    inflateWasm().then(
-      (buf) => worker.postMessage({ kind: Kind.boot, wasm: buf }, [buf]),
-      (err) => bootFailed("inflating the embedded WebAssembly: " + err.message),
-    );
+    w = new Worker(URL.createObjectURL(new Blob([workerSrc.textContent], { type: "text/javascript" })));
+    inflateWasm().then((buf) => w.postMessage({ kind: Kind.boot, wasm: buf }, [buf]), onFail);
   } else {
-    worker = new Worker("worker.js");
-    worker.postMessage({ kind: Kind.boot, url: new URL("winnow.wasm", location.href).href });
+    w = new Worker("worker.js");
+    w.postMessage({ kind: Kind.boot, url: new URL("winnow.wasm", location.href).href });
   }
+  return w;
+}
+
+function startWorker() {
+  worker = newBootedWorker((err) => bootFailed("inflating the embedded WebAssembly: " + err.message));
   worker.onmessage = (e) => onWorkerMessage(e.data);
   worker.onerror = (e) => {
     e.preventDefault();
@@ -167,14 +172,7 @@ function startReader() {
   let ok, fail;
   const r = { ready: new Promise((a, b) => { ok = a; fail = b; }), isReady: false };
   r.ready.then(() => { r.isReady = true; }, () => {});
-  let w;
-  if (workerSrc) {
-    w = new Worker(URL.createObjectURL(new Blob([workerSrc.textContent], { type: "text/javascript" })));
-    inflateWasm().then((buf) => w.postMessage({ kind: Kind.boot, wasm: buf }, [buf]), (err) => fail(err));
-  } else {
-    w = new Worker("worker.js");
-    w.postMessage({ kind: Kind.boot, url: new URL("winnow.wasm", location.href).href });
-  }
+  const w = newBootedWorker(fail);
   w.onmessage = (e) => {
     const msg = e.data;
     if (!msg || msg.v !== 1) return;
@@ -258,14 +256,7 @@ const helpers = []; // {worker, ready: Promise}
 function startHelper() {
   let ok, fail;
   const h = { ready: new Promise((a, b) => { ok = a; fail = b; }) };
-  let w;
-  if (workerSrc) {
-    w = new Worker(URL.createObjectURL(new Blob([workerSrc.textContent], { type: "text/javascript" })));
-    inflateWasm().then((buf) => w.postMessage({ kind: Kind.boot, wasm: buf }, [buf]), (err) => fail(err));
-  } else {
-    w = new Worker("worker.js");
-    w.postMessage({ kind: Kind.boot, url: new URL("winnow.wasm", location.href).href });
-  }
+  const w = newBootedWorker(fail);
   w.onmessage = (e) => {
     const msg = e.data;
     if (!msg || msg.v !== 1) return;
