@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"runtime"
 	"testing"
+
+	"winnow/core/glm"
 )
 
 // parallelRange covers every item exactly once for any size and core count;
@@ -35,5 +37,22 @@ func TestParallelHelpers(t *testing.T) {
 	}
 	if err := parallelEach(5, func(int) error { return nil }); err != nil {
 		t.Error(err)
+	}
+}
+
+// The read-ahead keeps a fold's worth of volumes ready (a smaller pool made
+// the reader and the accumulator wait for each other in turn), within its
+// byte cap, and never fewer than 3 buffers.
+func TestReadAheadPool(t *testing.T) {
+	for _, c := range []struct{ volumeBytes, min, max int }{
+		{96 * 96 * 60 * 2, glm.FoldVolumes + 1, readAheadBytes / (96 * 96 * 60 * 2)},
+		{64 * 64 * 36 * 4, glm.FoldVolumes + 1, glm.FoldVolumes + 3},
+		{256 * 256 * 256 * 4, 3, 3},
+		{0, glm.FoldVolumes + 1, glm.FoldVolumes + 3},
+	} {
+		got := readAheadPool(c.volumeBytes)
+		if got < c.min || got > c.max {
+			t.Errorf("readAheadPool(%d) = %d, want %d to %d", c.volumeBytes, got, c.min, c.max)
+		}
 	}
 }

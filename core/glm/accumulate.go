@@ -14,6 +14,11 @@ import (
 // WebAssembly backend has (more spills to memory).
 const batch = 7
 
+// FoldVolumes is the number of volumes AddVolume collects before it folds them into the sums
+// in one burst. A producer that decodes volumes beside it should keep at least this many
+// (plus a few) ready, or it waits during every fold while the fold then waits for it.
+const FoldVolumes = batch
+
 // stride is the number of values per voxel a kernel reads: the last folded volume and the
 // batch pending ones. flush interleaves them per chunk of voxels (win[v*stride + b]) so
 // that a kernel reads one voxel's values from one base address.
