@@ -116,6 +116,8 @@ func TestNullCheckAndGroup(t *testing.T) {
 		Summary string
 		Ms      float64
 		N       int
+		Lent    bool
+		Cores   int
 	}
 	// The same maps as uploaded files (served next to the page; the test's script
 	// fetches them, not the page), with one of them as the background.
@@ -133,12 +135,18 @@ func TestNullCheckAndGroup(t *testing.T) {
 	two := eval[run](t, b, fmt.Sprintf(`(async () => {
 	  const maps = await Promise.all(%s.map(async (n) => new File([await (await fetch(n)).blob()], n)));
 	  const s = await window.winnow.group({maps, background: maps[0], workers: 2});
-	  return {summary: JSON.stringify(s), ms: window.winnow.timings.groupMs, n: window.winnow.timings.groupWorkers};
+	  return {summary: JSON.stringify(s), ms: window.winnow.timings.groupMs, n: window.winnow.timings.groupWorkers,
+	    lent: window.winnow.timings.groupSteps.lentReader, cores: navigator.hardwareConcurrency || 1};
 	})()`, list))
 	t.Logf("group demo in the page: %.0f ms on %d worker (generated), %.0f ms on %d workers (uploaded maps)", one.Ms, one.N, two.Ms, two.N)
 	shoot("group-uploaded.png")
 	if one.N != 1 || two.N != 2 {
 		t.Errorf("workers used: %d and %d, want 1 and 2", one.N, two.N)
+	}
+	// With two or more logical processors the idle reader worker runs shard 2
+	// instead of a newly booted helper.
+	if two.Cores >= 2 && !two.Lent {
+		t.Errorf("the two-worker run booted a helper; want the idle reader worker to run shard 2")
 	}
 	// Sharding contract (interface.md, group --shard/merge): the merged shards give
 	// exactly the result of one run.

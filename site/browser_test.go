@@ -878,6 +878,14 @@ func TestParallelRead(t *testing.T) {
 	if !reading {
 		t.Errorf("progress texts during the parallel read %q, want a partial \"reading and accumulating: N of 40\"", two.Progress)
 	}
+	// A two-worker group run borrows the idle reader worker for its second
+	// shard and starts a fresh reader after it: the next fit reads in
+	// parallel again, with the same result.
+	lent := eval[bool](t, b, `window.winnow.group({demo: true, workers: 2, perms: 100}).then(() => window.winnow.timings.groupSteps.lentReader)`)
+	afterGroup := fit(2)
+	if !lent || afterGroup.Workers != 2 || afterGroup.MapSHA != two.MapSHA {
+		t.Errorf("after a group run: reader lent %v, the next fit on %d workers (want 2), z map SHA-256 %s (want %s)", lent, afterGroup.Workers, afterGroup.MapSHA, two.MapSHA)
+	}
 
 	// A run cut short: one line naming the file, through the reader worker.
 	cut := eval[string](t, b, fmt.Sprintf(`window.winnow.analyze({bold: window.__par.cut, events: window.__par.events, contrasts: [%q], workers: 2})

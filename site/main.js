@@ -250,8 +250,12 @@ function cancelReaderJob() {
 // ---- group mode: shards over more workers -----------------------------------
 
 // helpers are extra workers for the shards of a group run, started on first
-// use; shard 1 runs in the main worker, which also merges.
+// use; shard 1 runs in the main worker, which also merges. The reader
+// worker, booted and idle between fits, runs shard 2 when it is ready
+// (lentReader), so a two-worker run boots no new worker (about 37 MB of
+// the tab's memory each in Chromium).
 const helpers = []; // {worker, ready: Promise}
+let lentReader = null; // the reader, while it runs a group shard
 
 function startHelper() {
   let ok, fail;
@@ -273,8 +277,16 @@ function startHelper() {
   return h;
 }
 
+// stopHelpers ends the helpers, and the reader if it ran a shard: a
+// worker's WebAssembly memory never shrinks, so ending it is how its memory
+// returns. A fresh reader is started after the run (restoreReader).
 function stopHelpers() {
   while (helpers.length) helpers.pop().worker.terminate();
+  if (lentReader) {
+    lentReader.worker.terminate();
+    if (reader === lentReader) reader = null;
+    lentReader = null;
+  }
 }
 
 // requestOn sends one side request to a given worker.
@@ -334,11 +346,19 @@ async function runGroup(fields, n) {
     if (n === 1) {
       msg = await request(Kind.group, fields, onProgress);
     } else {
-      while (helpers.length < n - 1) startHelper();
-      await Promise.all(helpers.slice(0, n - 1).map((h) => h.ready));
+      const shardWorkers = [];
+      if (reader && reader.isReady && !readerJob) {
+        lentReader = reader;
+        shardWorkers.push(reader.worker);
+      }
+      const more = n - 1 - shardWorkers.length;
+      while (helpers.length < more) startHelper();
+      await Promise.all(helpers.slice(0, more).map((h) => h.ready));
+      shardWorkers.push(...helpers.slice(0, more).map((h) => h.worker));
       steps.helpersReady = performance.now() - t0;
+      steps.lentReader = lentReader !== null;
       const first = request(Kind.group, { ...fields, shard: 1, shards: n }, onProgress);
-      const rest = helpers.slice(0, n - 1).map((h, i) => requestOn(h.worker, Kind.group, { ...fields, shard: i + 2, shards: n }));
+      const rest = shardWorkers.map((w, i) => requestOn(w, Kind.group, { ...fields, shard: i + 2, shards: n }));
       const parts = await Promise.all([first, ...rest]);
       // The helpers' work is done: ending them returns their memory (a
       // worker's WebAssembly memory never shrinks); the next run starts
@@ -381,8 +401,16 @@ async function runGroup(fields, n) {
     setState(!isReady ? "booting" : canceled ? "ready" : "error");
     throw err;
   } finally {
+    stopHelpers(); // after an error or a cancel; nothing after a complete run
+    restoreReader();
     setBusy(false);
   }
+}
+
+// restoreReader starts a fresh, idle reader worker when a group run has
+// ended the one it borrowed.
+function restoreReader() {
+  if (!reader && isReady && fitWorkers() >= 2) startReader();
 }
 
 // group runs a group analysis from script: {demo: true} or {maps: [Blob],
