@@ -264,7 +264,7 @@ func (s *session) pageGroup(ctx context.Context) error {
 		runsNote = " One run only (long)."
 	}
 	s.setFigure(pageGroupName, ratio, "wall", fmt.Sprintf(
-		"window.winnow.group in headless Chromium on %d workers (%d float32 .nii maps of %dx%dx%d as Files in a freshly loaded page; tfce, one-sample sign flips, %d relabellings, default seed; from the call until the views show the result, helper workers' start included) ÷ core/group Model.Prepare + Problem.Run with MaxTFCE on the same values, same plan, %d workers, in this process; wall clock, runs interleaved; medians %.1f s vs %.1f s; CPU: every Chromium process %.1f s, native %.1f s (ratio %.2f); %s; last run's steps: %s; %s.%s",
+		"window.winnow.group in headless Chromium on %d workers (%d float32 .nii maps of %dx%dx%d as Files in a freshly loaded page; tfce, one-sample sign flips, %d relabellings, default seed; from the call until the views show the result, the start of any helper worker included) ÷ core/group Model.Prepare + Problem.Run with MaxTFCE on the same values, same plan, %d workers, in this process; wall clock, runs interleaved; medians %.1f s vs %.1f s; CPU: every Chromium process %.1f s, native %.1f s (ratio %.2f); %s; last run's steps: %s; %s.%s",
 		pageGroupPages, n, dims[0], dims[1], dims[2], s.cfg.GroupPerms, pageGroupPages, pm/1000, nm, pc, nc, pc/nc, agree, lastSteps, reth, runsNote))
 	bm, _, _, _ := stats(baseMB)
 	km, _, _, _ := stats(peakMB)
@@ -279,6 +279,7 @@ func (s *session) pageGroup(ctx context.Context) error {
 // the page ended (s from the call) and, per worker, when its stages began.
 func stepsNote(js string) string {
 	var st struct {
+		LentReader                          bool
 		HelpersReady, Shards, Result, Shown float64
 		Workers                             []map[string]float64
 		Worker                              map[string]float64
@@ -308,7 +309,11 @@ func stepsNote(js string) string {
 		}
 		return strings.Join(parts, ", ")
 	}
-	out := fmt.Sprintf("helpers ready %.1f s, shards back %.1f s, merged result %.1f s, shown %.1f s", st.HelpersReady/1000, st.Shards/1000, st.Result/1000, st.Shown/1000)
+	out := ""
+	if st.LentReader {
+		out = "shard 2 in the idle reader worker; "
+	}
+	out += fmt.Sprintf("helpers ready %.1f s, shards back %.1f s, merged result %.1f s, shown %.1f s", st.HelpersReady/1000, st.Shards/1000, st.Result/1000, st.Shown/1000)
 	for i, w := range st.Workers {
 		out += fmt.Sprintf("; shard %d (from its start): %s", i+1, stages(w))
 	}
