@@ -113,11 +113,12 @@ func TestNullCheckAndGroup(t *testing.T) {
 	shoot("group.png")
 
 	type run struct {
-		Summary string
-		Ms      float64
-		N       int
-		Lent    bool
-		Cores   int
+		Summary  string
+		Ms       float64
+		N        int
+		Lent     bool
+		Cores    int
+		GroupTab bool
 	}
 	// The same maps as uploaded files (served next to the page; the test's script
 	// fetches them, not the page), with one of them as the background.
@@ -136,7 +137,8 @@ func TestNullCheckAndGroup(t *testing.T) {
 	  const maps = await Promise.all(%s.map(async (n) => new File([await (await fetch(n)).blob()], n)));
 	  const s = await window.winnow.group({maps, background: maps[0], workers: 2});
 	  return {summary: JSON.stringify(s), ms: window.winnow.timings.groupMs, n: window.winnow.timings.groupWorkers,
-	    lent: window.winnow.timings.groupSteps.lentReader, cores: navigator.hardwareConcurrency || 1};
+	    lent: window.winnow.timings.groupSteps.lentReader, cores: navigator.hardwareConcurrency || 1,
+	    groupTab: document.getElementById("mode-group").getAttribute("aria-selected") === "true" && !document.getElementById("group-settings").hidden};
 	})()`, list))
 	t.Logf("group demo in the page: %.0f ms on %d worker (generated), %.0f ms on %d workers (uploaded maps)", one.Ms, one.N, two.Ms, two.N)
 	shoot("group-uploaded.png")
@@ -145,6 +147,10 @@ func TestNullCheckAndGroup(t *testing.T) {
 	}
 	// With two or more logical processors the idle reader worker runs shard 2
 	// instead of a newly booted helper.
+	// A group result started from script shows the Group tab's form beside it.
+	if !two.GroupTab {
+		t.Errorf("after window.winnow.group the Single run form is shown; want the Group tab")
+	}
 	if two.Cores >= 2 && !two.Lent {
 		t.Errorf("the two-worker run booted a helper; want the idle reader worker to run shard 2")
 	}

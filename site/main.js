@@ -448,6 +448,7 @@ function group(opts = {}) {
 // showGroupSettings puts the shown group result's inference settings into
 // the group form, so that changing one of them starts from what is shown.
 function showGroupSettings() {
+  setMode("group"); // a group run started from script shows the group form beside its result
   const c = result.summary.contrasts[0];
   if (!c) return;
   $("g-correct").value = c.correction;
@@ -1273,8 +1274,10 @@ function analyze(opts) {
 
 // formFromFields puts the settings of a run started from script into the
 // form, so that the form describes the shown result and a later "Apply" or
-// Fit starts from them. Fields left out keep the form's value.
+// Fit starts from them, and shows that form (the Single run tab). Fields
+// left out keep the form's value.
 function formFromFields(f) {
+  setMode("run");
   const set = (id, v) => {
     const el = $(id);
     if (!el || v === undefined || v === null || (typeof v === "number" && !Number.isFinite(v))) return;
