@@ -44,6 +44,7 @@ var figureSpecs = []figureSpec{
 	{"fit_wasm_vs_numpy", "x", ">= 1"},
 	{"tfce_exact_speedup", "x", ">= 5"},
 	{"group_perm_seconds", "s", "<= 30"},
+	{groupMemory, "x", "<= 4"},
 	{"page_fit_vs_native", "x", "<= 2"},
 	{"page_rethreshold_ms", "ms", "<= 50"},
 	{pageGroupName, "x", "<= 3"},
@@ -143,7 +144,7 @@ func measureAll(ctx context.Context, cfg config) (*Report, error) {
 		{[]string{"fit_end_to_end_vs_gunzip", "fit_rss_vs_data", "fit_native_vs_numpy"}, s.fitNative},
 		{[]string{"fit_wasm_vs_numpy"}, s.fitWasm},
 		{[]string{nullCheckName}, s.nullCheck},
-		{[]string{"group_perm_seconds"}, s.group},
+		{[]string{"group_perm_seconds", groupMemory}, s.group},
 		{[]string{"page_fit_vs_native", "page_rethreshold_ms"}, s.page},
 		{[]string{pageGroupName, pageGroupMemory}, s.pageGroup},
 	}
@@ -745,9 +746,72 @@ func (s *session) fitWasm(ctx context.Context) error {
 	return nil
 }
 
-// ---- group_perm_seconds ---------------------------------------------------
+// ---- group_perm_seconds, group_memory_vs_maps -------------------------------
+
+// groupMemoryCLI runs `winnow group` (tfce, one-sample sign flips, the
+// figure's relabellings, 2 workers) on the group figures' maps as float32
+// .nii files and divides its peak RSS by the bytes of the maps' data.
+func (s *session) groupMemoryCLI(ctx context.Context) error {
+	s.buildCLI()
+	if s.cliErr != nil {
+		s.setFigure(groupMemory, nil, "", "not measured: building the winnow CLI: "+oneLine(s.cliErr.Error()))
+		return nil
+	}
+	dims, n := s.cfg.GroupDims, s.cfg.GroupMaps
+	mapBytes := int64(n) * int64(dims[0]*dims[1]*dims[2]) * 4
+	dir := filepath.Join(s.cfg.Dir, "group-maps")
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return err
+	}
+	names, _, _, err := writeGroupMaps(dir, dims, n, s.cfg.Run.Seed)
+	if err != nil {
+		return err
+	}
+	paths := make([]string, n)
+	for i, nm := range names {
+		paths[i] = filepath.Join(dir, nm)
+	}
+	var ratio []float64
+	var last sample
+	for i := 0; i < s.cfg.LongRuns; i++ {
+		c := exec.Command(s.cli, "group", "--maps", strings.Join(paths, ","), "--correct", "tfce",
+			"--perms", strconv.Itoa(s.cfg.GroupPerms), "--workers", "2", "--out", filepath.Join(s.cfg.Dir, fmt.Sprintf("group-out-%d", i)))
+		tctx, cancel := context.WithTimeout(ctx, s.cfg.Timeout)
+		smp, _, err := runCmd(tctx, c)
+		cancel()
+		if err != nil {
+			return err
+		}
+		if smp.MaxRSS <= 0 {
+			s.setFigure(groupMemory, nil, "", "peak RSS is not reported on this platform")
+			return nil
+		}
+		last = smp
+		ratio = append(ratio, float64(smp.MaxRSS)/float64(mapBytes))
+	}
+	runsNote := ""
+	if len(ratio) == 1 {
+		runsNote = " One run only (long)."
+	}
+	s.setFigure(groupMemory, ratio, "", fmt.Sprintf(
+		"peak RSS of `winnow group` (native CLI subprocess: %d float32 .nii maps of %dx%dx%d read, tfce, one-sample sign flips, %d relabellings, 2 workers, maps and summary written; getrusage ru_maxrss) ÷ %d bytes of the maps' float32 data; last run %.0f MB in %.1f s wall.%s",
+		n, dims[0], dims[1], dims[2], s.cfg.GroupPerms, mapBytes, float64(last.MaxRSS)/1e6, last.Wall.Seconds(), runsNote))
+	return nil
+}
+
+// groupMemory is the peak memory of `winnow group` against its maps (issue 7:
+// peak memory at most 4 times the input maps).
+const groupMemory = "group_memory_vs_maps"
 
 func (s *session) group(ctx context.Context) error {
+	if s.cfg.Skip[groupMemory] == "" {
+		if err := s.groupMemoryCLI(ctx); err != nil {
+			return err
+		}
+	}
+	if s.cfg.Skip["group_perm_seconds"] != "" {
+		return nil
+	}
 	dims := s.cfg.GroupDims
 	nv := dims[0] * dims[1] * dims[2]
 	n := s.cfg.GroupMaps

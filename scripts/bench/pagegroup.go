@@ -73,33 +73,9 @@ func (s *session) pageGroup(ctx context.Context) error {
 
 	// The maps: the data of group_perm_seconds (smooth noise plus a shared
 	// effect), as float32 .nii files next to the page and in memory.
-	common := smoothMap(dims, 1.5, s.cfg.Run.Seed)
-	grid := nifti.Grid{Dims: dims, VoxelMM: [3]float64{2, 2, 2}, SformCode: 1, QformCode: 1}
-	for a := range 3 {
-		grid.Affine[a][a] = 2
-		grid.Affine[a][3] = -float64(dims[a])
-	}
-	grid.Affine[3][3] = 1
-	var names []string
-	files := make([][]byte, n)
-	y := make([]float64, n*nv)
-	for i := 0; i < n; i++ {
-		noise := smoothMap(dims, 1.5, s.cfg.Run.Seed+uint64(i)+1)
-		m := make([]float32, nv)
-		for v := range m {
-			m[v] = float32(0.3*float64(common[v]) + float64(noise[v]))
-			y[i*nv+v] = float64(m[v])
-		}
-		var buf bytes.Buffer
-		if err := nifti.WriteMap(&buf, grid, m, nifti.WriteOptions{Uncompressed: true, Descrip: "winnow bench group map"}); err != nil {
-			return err
-		}
-		name := fmt.Sprintf("bench-group-%02d.nii", i+1)
-		names = append(names, name)
-		files[i] = buf.Bytes()
-		if err := os.WriteFile(filepath.Join(site, name), files[i], 0o644); err != nil {
-			return err
-		}
+	names, files, y, err := writeGroupMaps(site, dims, n, s.cfg.Run.Seed)
+	if err != nil {
+		return err
 	}
 
 	// The native engine: core/group, one-sample sign flips, MaxTFCE, the
@@ -273,6 +249,42 @@ func (s *session) pageGroup(ctx context.Context) error {
 		"(largest sum of VmRSS over every Chromium process, /proc, sampled every 100 ms during window.winnow.group) − (the same sum just before the call, page loaded afresh, maps in the page) ÷ %d bytes (%d maps × %d voxels × 4, the float32 data); medians: peak %.0f MB, before %.0f MB; sum of the processes' VmHWM after the run %.0f MB; last run, processes' growth to their own largest VmRSS: %s.%s",
 		mapBytes, n, nv, km, bm, hm, lastGrown, runsNote))
 	return nil
+}
+
+// writeGroupMaps writes the group figures' n maps (smooth noise plus a shared
+// effect, the values of group_perm_seconds rounded to float32) as float32
+// .nii files bench-group-NN.nii in dir, and returns their names, bytes and
+// values (n×V, map i at y[i*V:(i+1)*V]).
+func writeGroupMaps(dir string, dims [3]int, n int, seed uint64) ([]string, [][]byte, []float64, error) {
+	nv := dims[0] * dims[1] * dims[2]
+	common := smoothMap(dims, 1.5, seed)
+	grid := nifti.Grid{Dims: dims, VoxelMM: [3]float64{2, 2, 2}, SformCode: 1, QformCode: 1}
+	for a := range 3 {
+		grid.Affine[a][a] = 2
+		grid.Affine[a][3] = -float64(dims[a])
+	}
+	grid.Affine[3][3] = 1
+	names := make([]string, n)
+	files := make([][]byte, n)
+	y := make([]float64, n*nv)
+	for i := 0; i < n; i++ {
+		noise := smoothMap(dims, 1.5, seed+uint64(i)+1)
+		m := make([]float32, nv)
+		for v := range m {
+			m[v] = float32(0.3*float64(common[v]) + float64(noise[v]))
+			y[i*nv+v] = float64(m[v])
+		}
+		var buf bytes.Buffer
+		if err := nifti.WriteMap(&buf, grid, m, nifti.WriteOptions{Uncompressed: true, Descrip: "winnow bench group map"}); err != nil {
+			return nil, nil, nil, err
+		}
+		names[i] = fmt.Sprintf("bench-group-%02d.nii", i+1)
+		files[i] = buf.Bytes()
+		if err := os.WriteFile(filepath.Join(dir, names[i]), files[i], 0o644); err != nil {
+			return nil, nil, nil, err
+		}
+	}
+	return names, files, y, nil
 }
 
 // stepsNote condenses window.winnow.timings.groupSteps: when each step of
