@@ -456,6 +456,20 @@ function showGroupSettings() {
   if (c.cluster_p) $("g-cluster-p").value = String(c.cluster_p);
 }
 
+// applyPartial puts a re-threshold's reply into the shown result: the
+// summary, the histograms, the null check and the maps the settings change
+// (each replacing the map of its contrast and kind).
+function applyPartial(msg) {
+  result.summary = JSON.parse(msg.summary);
+  result.hist = msg.hist;
+  result.nullCheck = msg.nullCheck || null;
+  for (const m of msg.maps) {
+    const i = result.maps.findIndex((x) => x.contrast === m.contrast && x.kind === m.kind);
+    if (i >= 0) result.maps[i] = m;
+    else result.maps.push(m);
+  }
+}
+
 // groupRethreshold infers the shown group result again under {correct,
 // alpha, clusterP} without running the permutations again: the parametric
 // methods at any settings, fwe-perm and tfce at a new alpha from the
@@ -471,15 +485,8 @@ async function groupRethreshold(fields) {
   setBusy(true);
   try {
     const msg = await request(Kind.group, { rethreshold: true, correct: fields.correct, alpha: fields.alpha, clusterP: fields.clusterP }, onProgress);
-    result.summary = JSON.parse(msg.summary);
-    result.hist = msg.hist;
+    applyPartial(msg);
     result.nullHist = msg.nullHist || [];
-    result.nullCheck = msg.nullCheck || null;
-    for (const m of msg.maps) {
-      const i = result.maps.findIndex((x) => x.contrast === m.contrast && x.kind === m.kind);
-      if (i >= 0) result.maps[i] = m;
-      else result.maps.push(m);
-    }
     view.selected = -1;
     const tReply = performance.now();
     const drawn = await showResult(true);
@@ -697,14 +704,7 @@ async function rethreshold(fields) {
   busy = true;
   try {
     const msg = await request(Kind.rethreshold, fields, onProgress);
-    result.summary = JSON.parse(msg.summary);
-    result.hist = msg.hist;
-    result.nullCheck = msg.nullCheck || null;
-    for (const m of msg.maps) {
-      const i = result.maps.findIndex((x) => x.contrast === m.contrast && x.kind === m.kind);
-      if (i >= 0) result.maps[i] = m;
-      else result.maps.push(m);
-    }
+    applyPartial(msg);
     view.selected = -1;
     const tReply = performance.now();
     const drawn = await showResult(true);

@@ -1367,64 +1367,75 @@ func MergeGroup(dirs []string) (*GroupResult, error) {
 	if len(dirs) == 0 {
 		return nil, inputErrf("merge", "no shard folder given; want the folders of shards 1/N to N/N")
 	}
-	var first *shardFile
-	var st *groupState
-	byShard := map[int]*shardFile{}
-	for _, dir := range dirs {
+	shards := make([]namedShard, len(dirs))
+	for i, dir := range dirs {
 		name := filepath.Join(dir, shardStateFile)
 		sf, err := readShard(name)
 		if err != nil {
 			return nil, err
 		}
-		if first == nil {
-			first = sf
-			st = &groupState{}
-			if err := gob.NewDecoder(bytes.NewReader(sf.State)).Decode(st); err != nil {
-				return nil, inputErrf(name, "unreadable shard state: %v", err)
-			}
-			if len(st.Contrasts) == 0 {
-				return nil, inputErrf(name, "shard state holds no contrast")
-			}
-		} else {
+		shards[i] = namedShard{name, sf}
+	}
+	return joinShards(shards, " from "+shards[0].name)
+}
+
+// namedShard is a decoded shard and the name its error messages give it.
+type namedShard struct {
+	name string
+	sf   *shardFile
+}
+
+// joinShards checks that the shards (at least one, checked by readShard or
+// decodeShard) are every shard of one run, each once, and finishes the run
+// from the first one's state and all their nulls, exactly as one run does.
+// ref follows "differ" in the message about a shard of another run.
+func joinShards(shards []namedShard, ref string) (*GroupResult, error) {
+	first := shards[0]
+	st := &groupState{}
+	if err := gob.NewDecoder(bytes.NewReader(first.sf.State)).Decode(st); err != nil {
+		return nil, inputErrf(first.name, "unreadable shard state: %v", err)
+	}
+	if len(st.Contrasts) == 0 {
+		return nil, inputErrf(first.name, "shard state holds no contrast")
+	}
+	fp, n := first.sf.Fingerprint, first.sf.Shards
+	byShard := map[int]*shardFile{}
+	for i, s := range shards {
+		sf := s.sf
+		if i > 0 {
 			h := sha256.Sum256(sf.State)
-			if sf.Fingerprint != first.Fingerprint || hex.EncodeToString(h[:]) != first.Fingerprint || sf.Shards != first.Shards {
-				return nil, inputErrf(name, "belongs to a different run (inputs, settings or shard count differ from %s); want the shards of one run", filepath.Join(dirs[0], shardStateFile))
+			if sf.Fingerprint != fp || hex.EncodeToString(h[:]) != fp || sf.Shards != n {
+				return nil, inputErrf(s.name, "belongs to a different run (inputs, settings or shard count differ%s); want the shards of one run", ref)
 			}
 		}
-		if prev, ok := byShard[sf.Shard]; ok && prev != nil {
-			return nil, inputErrf(name, "shard %d/%d given twice; want each shard once", sf.Shard, sf.Shards)
+		if byShard[sf.Shard] != nil {
+			return nil, inputErrf(s.name, "shard %d/%d given twice; want each shard once", sf.Shard, sf.Shards)
 		}
 		if len(sf.Nulls) != len(st.Contrasts) {
-			return nil, inputErrf(name, "holds %d null slices, want %d (one per contrast)", len(sf.Nulls), len(st.Contrasts))
+			return nil, inputErrf(s.name, "holds %d null slices, want %d (one per contrast)", len(sf.Nulls), len(st.Contrasts))
 		}
 		byShard[sf.Shard] = sf
 	}
 	var missing []string
-	for k := 1; k <= first.Shards; k++ {
+	for k := 1; k <= n; k++ {
 		if byShard[k] == nil {
-			missing = append(missing, fmt.Sprintf("%d/%d", k, first.Shards))
+			missing = append(missing, fmt.Sprintf("%d/%d", k, n))
 		}
 	}
 	if len(missing) > 0 {
-		return nil, inputErrf("merge", "shard(s) %s missing; want all %d shards of the run", strings.Join(missing, ", "), first.Shards)
+		return nil, inputErrf("merge", "shard(s) %s missing; want all %d shards of the run", strings.Join(missing, ", "), n)
 	}
 	nulls := make([]groupNull, len(st.Contrasts))
 	for ci, gc := range st.Contrasts {
 		nl := groupNull{Lo: 0, Hi: gc.N}
-		for k := 1; k <= first.Shards; k++ {
+		for k := 1; k <= n; k++ {
 			part := byShard[k].Nulls[ci]
-			if lo, hi := sliceOf(gc.N, k, first.Shards); part.Lo != lo || part.Hi != hi || (part.Stat != nil && len(part.Stat) != hi-lo) {
-				return nil, inputErrf("merge", "shard %d/%d covers relabellings %d..%d, want %d..%d", k, first.Shards, part.Lo, part.Hi, lo, hi)
+			if lo, hi := sliceOf(gc.N, k, n); part.Lo != lo || part.Hi != hi || (part.Stat != nil && len(part.Stat) != hi-lo) {
+				return nil, inputErrf("merge", "shard %d/%d covers relabellings %d..%d, want %d..%d", k, n, part.Lo, part.Hi, lo, hi)
 			}
-			if part.Stat != nil {
-				nl.Stat = append(nl.Stat, part.Stat...)
-			}
-			if part.Cluster != nil {
-				nl.Cluster = append(nl.Cluster, part.Cluster...)
-			}
-			if part.TFCE != nil {
-				nl.TFCE = append(nl.TFCE, part.TFCE...)
-			}
+			nl.Stat = append(nl.Stat, part.Stat...)
+			nl.Cluster = append(nl.Cluster, part.Cluster...)
+			nl.TFCE = append(nl.TFCE, part.TFCE...)
 		}
 		nulls[ci] = nl
 	}
@@ -1442,9 +1453,15 @@ func readShard(name string) (*shardFile, error) {
 	if err != nil {
 		return nil, inputErr(name, err)
 	}
+	return decodeShard(zr, name, "unreadable shard file")
+}
+
+// decodeShard reads one gob-encoded shard and checks its format and K/N;
+// unreadable begins the message of a decoding error.
+func decodeShard(r io.Reader, name, unreadable string) (*shardFile, error) {
 	var sf shardFile
-	if err := gob.NewDecoder(zr).Decode(&sf); err != nil {
-		return nil, inputErrf(name, "unreadable shard file: %v", err)
+	if err := gob.NewDecoder(r).Decode(&sf); err != nil {
+		return nil, inputErrf(name, "%s: %v", unreadable, err)
 	}
 	if sf.Format != shardFormat {
 		return nil, inputErrf(name, "shard format %d, want %d", sf.Format, shardFormat)

@@ -9,9 +9,7 @@ package analysis
 import (
 	"bytes"
 	"context"
-	"crypto/sha256"
 	"encoding/gob"
-	"encoding/hex"
 	"errors"
 	"fmt"
 	"math"
@@ -53,64 +51,16 @@ func MergeGroupShards(shards [][]byte) (*GroupResult, error) {
 	if len(shards) == 0 {
 		return nil, inputErrf("merge", "no shard given; want shards 1/N to N/N")
 	}
-	var first *shardFile
-	st := &groupState{}
-	byShard := map[int]*shardFile{}
+	named := make([]namedShard, len(shards))
 	for i, b := range shards {
 		name := fmt.Sprintf("shard %d of %d given", i+1, len(shards))
-		var sf shardFile
-		if err := gob.NewDecoder(bytes.NewReader(b)).Decode(&sf); err != nil {
-			return nil, inputErrf(name, "unreadable shard: %v", err)
+		sf, err := decodeShard(bytes.NewReader(b), name, "unreadable shard")
+		if err != nil {
+			return nil, err
 		}
-		if sf.Format != shardFormat {
-			return nil, inputErrf(name, "shard format %d, want %d", sf.Format, shardFormat)
-		}
-		if sf.Shards < 1 || sf.Shard < 1 || sf.Shard > sf.Shards {
-			return nil, inputErrf(name, "shard %d/%d; want K/N with 1 <= K <= N", sf.Shard, sf.Shards)
-		}
-		if first == nil {
-			first = &sf
-			if err := gob.NewDecoder(bytes.NewReader(sf.State)).Decode(st); err != nil {
-				return nil, inputErrf(name, "unreadable shard state: %v", err)
-			}
-			if len(st.Contrasts) == 0 {
-				return nil, inputErrf(name, "shard state holds no contrast")
-			}
-		} else {
-			h := sha256.Sum256(sf.State)
-			if sf.Fingerprint != first.Fingerprint || hex.EncodeToString(h[:]) != first.Fingerprint || sf.Shards != first.Shards {
-				return nil, inputErrf(name, "belongs to a different run (inputs, settings or shard count differ); want the shards of one run")
-			}
-		}
-		if byShard[sf.Shard] != nil {
-			return nil, inputErrf(name, "shard %d/%d given twice; want each shard once", sf.Shard, sf.Shards)
-		}
-		if len(sf.Nulls) != len(st.Contrasts) {
-			return nil, inputErrf(name, "holds %d null slices, want %d (one per contrast)", len(sf.Nulls), len(st.Contrasts))
-		}
-		byShard[sf.Shard] = &sf
+		named[i] = namedShard{name, sf}
 	}
-	for k := 1; k <= first.Shards; k++ {
-		if byShard[k] == nil {
-			return nil, inputErrf("merge", "shard %d/%d missing; want all %d shards of the run", k, first.Shards, first.Shards)
-		}
-	}
-	nulls := make([]groupNull, len(st.Contrasts))
-	for ci, gc := range st.Contrasts {
-		nl := groupNull{Lo: 0, Hi: gc.N}
-		for k := 1; k <= first.Shards; k++ {
-			part := byShard[k].Nulls[ci]
-			if lo, hi := sliceOf(gc.N, k, first.Shards); part.Lo != lo || part.Hi != hi || (part.Stat != nil && len(part.Stat) != hi-lo) {
-				return nil, inputErrf("merge", "shard %d/%d covers relabellings %d..%d, want %d..%d", k, first.Shards, part.Lo, part.Hi, lo, hi)
-			}
-			nl.Stat = append(nl.Stat, part.Stat...)
-			nl.Cluster = append(nl.Cluster, part.Cluster...)
-			nl.TFCE = append(nl.TFCE, part.TFCE...)
-		}
-		nulls[ci] = nl
-	}
-	st.Shards = 0
-	return finishGroup(st, nulls)
+	return joinShards(named, "")
 }
 
 // Histogram returns the in-mask z histogram of contrast c of a complete group

@@ -76,28 +76,14 @@ func (s *session) page(ctx context.Context) error {
 		}
 	}
 
-	// Serve the build on loopback with the page's isolation headers.
-	url, stop, err := serveSite(site)
-	if err != nil {
-		return err
+	bp, err := s.openPage(ctx, site, "chromium-profile", true)
+	if bp != nil {
+		defer bp.close()
 	}
-	defer stop()
-	opts := chromiumOptions(filepath.Join(s.cfg.Dir, "chromium-profile"))
-	actx, cancelAlloc := chromedp.NewExecAllocator(ctx, opts...)
-	defer cancelAlloc()
-	bctx2, cancelTab := chromedp.NewContext(actx)
-	defer cancelTab()
-	// The first action starts the browser: no timeout on its context (a
-	// timeout there would end the browser); later actions get one each.
-	if err := chromedp.Do(bctx2, chromedp.Navigate(url)); err != nil {
+	if err != nil {
 		return fail("navigating to the page: " + oneLine(err.Error()))
 	}
-	browserPID := -1
-	if c := chromedp.FromContext(bctx2); c != nil && c.Browser != nil {
-		if p := c.Browser.Process(); p != nil {
-			browserPID = p.Pid
-		}
-	}
+	browserPID := bp.pid
 	// pageCPU is the CPU time of every Chromium process so far.
 	pageCPU := func() (time.Duration, bool) {
 		if browserPID < 0 {
@@ -105,7 +91,7 @@ func (s *session) page(ctx context.Context) error {
 		}
 		return treeCPU(browserPID)
 	}
-	tctx, cancelTime := context.WithTimeout(bctx2, s.cfg.Timeout)
+	tctx, cancelTime := context.WithTimeout(bp.tab, s.cfg.Timeout)
 	defer cancelTime()
 	version, err := evalJS[string](tctx, `window.winnow.ready.then(r => String(r.version))`)
 	if err != nil {
@@ -344,6 +330,43 @@ func serveSite(dir string) (string, func(), error) {
 	})}
 	go srv.Serve(ln)
 	return "http://" + ln.Addr().String() + "/", func() { srv.Close() }, nil
+}
+
+// benchPage is a headless Chromium with one tab, on a loopback server of a
+// site build.
+type benchPage struct {
+	url   string          // the site's address
+	tab   context.Context // the tab, without a timeout (give each action one)
+	pid   int             // the browser process, -1 if unknown
+	close func()
+}
+
+// openPage serves site (serveSite), starts Chromium with its profile in the
+// named folder of the scratch directory and navigates its tab to the site
+// (toSite) or to about:blank. The first action starts the browser, so its
+// context has no timeout (a timeout there would end the browser). On an
+// error from that navigation the page is returned too, for its close.
+func (s *session) openPage(ctx context.Context, site, profile string, toSite bool) (*benchPage, error) {
+	url, stop, err := serveSite(site)
+	if err != nil {
+		return nil, err
+	}
+	actx, cancelAlloc := chromedp.NewExecAllocator(ctx, chromiumOptions(filepath.Join(s.cfg.Dir, profile))...)
+	tab, cancelTab := chromedp.NewContext(actx)
+	bp := &benchPage{url: url, tab: tab, pid: -1, close: func() { cancelTab(); cancelAlloc(); stop() }}
+	first := "about:blank"
+	if toSite {
+		first = url
+	}
+	if err := chromedp.Do(tab, chromedp.Navigate(first)); err != nil {
+		return bp, err
+	}
+	if c := chromedp.FromContext(tab); c != nil && c.Browser != nil {
+		if p := c.Browser.Process(); p != nil {
+			bp.pid = p.Pid
+		}
+	}
+	return bp, nil
 }
 
 // chromiumOptions are the settings of the headless Chromium the page

@@ -107,27 +107,16 @@ func (s *session) pageGroup(ctx context.Context) error {
 		})
 	}
 
-	// Serve the build on loopback with the page's isolation headers.
-	url, stop, err := serveSite(site)
-	if err != nil {
-		return err
+	// The build on loopback, Chromium on about:blank.
+	bp, err := s.openPage(ctx, site, "chromium-profile-group", false)
+	if bp != nil {
+		defer bp.close()
 	}
-	defer stop()
-	opts := chromiumOptions(filepath.Join(s.cfg.Dir, "chromium-profile-group"))
-	actx, cancelAlloc := chromedp.NewExecAllocator(ctx, opts...)
-	defer cancelAlloc()
-	bctx, cancelTab := chromedp.NewContext(actx)
-	defer cancelTab()
-	if err := chromedp.Do(bctx, chromedp.Navigate("about:blank")); err != nil {
+	if err != nil {
 		return fail("starting Chromium: " + oneLine(err.Error()))
 	}
-	browserPID := -1
-	if c := chromedp.FromContext(bctx); c != nil && c.Browser != nil {
-		if p := c.Browser.Process(); p != nil {
-			browserPID = p.Pid
-		}
-	}
-	tctx, cancelTime := context.WithTimeout(bctx, s.cfg.Timeout)
+	url, browserPID := bp.url, bp.pid
+	tctx, cancelTime := context.WithTimeout(bp.tab, s.cfg.Timeout)
 	defer cancelTime()
 	list, _ := json.Marshal(names)
 
