@@ -18,6 +18,7 @@ import (
 	"winnow/core/group"
 	"winnow/core/infer"
 	"winnow/core/nifti"
+	"winnow/core/nullcheck"
 )
 
 // ShardBytes encodes a shard (GroupOptions.Shards > 0) for MergeGroupShards:
@@ -380,28 +381,10 @@ func (r *GroupResult) NullCheckText() (sentence, warning string) {
 		verb = "exceeds the threshold"
 	}
 	sentence = fmt.Sprintf("with these settings, %d of %d %s %s: about %s %%, 95 %% interval %s-%s %%",
-		nc.WithFindings, nc.Designs, sets, verb, percentText(nc.FWEEstimate), percentText(nc.CI95[0]), percentText(nc.CI95[1]))
+		nc.WithFindings, nc.Designs, sets, verb, nullcheck.Percent(nc.FWEEstimate), nullcheck.Percent(nc.CI95[0]), nullcheck.Percent(nc.CI95[1]))
 	if nc.CI95[0] > r.state.Alpha {
 		warning = fmt.Sprintf("null check: %d of %d %s exceed the threshold (95 %% interval %s-%s %%), above alpha = %s %%; these settings do not control the familywise error here",
-			nc.WithFindings, nc.Designs, sets, percentText(nc.CI95[0]), percentText(nc.CI95[1]), percentText(r.state.Alpha))
+			nc.WithFindings, nc.Designs, sets, nullcheck.Percent(nc.CI95[0]), nullcheck.Percent(nc.CI95[1]), nullcheck.Percent(r.state.Alpha))
 	}
 	return sentence, warning
-}
-
-// percentText writes a proportion as a percentage for people: whole numbers from 10 %,
-// one decimal below, "<0.1" for a positive value that would round to 0.
-func percentText(p float64) string {
-	v := 100 * p
-	switch {
-	case v == 0:
-		return "0"
-	case v >= 10:
-		return fmt.Sprintf("%.0f", v)
-	case v < 0.05:
-		return "<0.1"
-	}
-	if math.Abs(v-math.Round(v)) < 0.05 && v >= 1 {
-		return fmt.Sprintf("%.0f", v)
-	}
-	return fmt.Sprintf("%.1f", v)
 }

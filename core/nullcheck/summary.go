@@ -37,7 +37,7 @@ func Sentence(nc report.NullCheck) string {
 		verb = "produced no finding"
 	}
 	return fmt.Sprintf("with these settings, %d of %d chance designs %s: about %s %%, 95 %% interval %s-%s %%",
-		nc.WithFindings, nc.Designs, verb, percent(nc.FWEEstimate), percent(nc.CI95[0]), percent(nc.CI95[1]))
+		nc.WithFindings, nc.Designs, verb, Percent(nc.FWEEstimate), Percent(nc.CI95[0]), Percent(nc.CI95[1]))
 }
 
 // Warning returns a warning when the interval's lower bound lies above alpha (the
@@ -47,12 +47,12 @@ func Warning(nc report.NullCheck, alpha float64) string {
 		return ""
 	}
 	return fmt.Sprintf("null check: %d of %d chance designs produced a finding (95 %% interval %s-%s %%), above alpha = %s %%; these settings do not control the familywise error on this run",
-		nc.WithFindings, nc.Designs, percent(nc.CI95[0]), percent(nc.CI95[1]), percent(alpha))
+		nc.WithFindings, nc.Designs, Percent(nc.CI95[0]), Percent(nc.CI95[1]), Percent(alpha))
 }
 
-// percent writes a proportion as a percentage for people: whole numbers from 10 %, one
+// Percent writes a proportion as a percentage for people: whole numbers from 10 %, one
 // decimal below, "<0.1" for a positive value that would round to 0.
-func percent(p float64) string {
+func Percent(p float64) string {
 	v := 100 * p
 	switch {
 	case v == 0:
